@@ -9,3 +9,6 @@ pub mod geojson_io;
 pub mod land;
 pub mod model;
 pub mod summary;
+pub mod ingest;
+pub mod progress;
+pub mod store;
