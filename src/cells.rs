@@ -1,0 +1,208 @@
+//! Buckets every placed edit into an H3 cell (at one resolution per run) and an ISO week, and
+//! sums what the detectors measure per cell-week. For the report week it also keeps which
+//! changesets contributed to each measure, so every outlier can name them.
+
+use std::collections::{BTreeMap, HashMap};
+
+use h3o::{CellIndex, LatLng, Resolution};
+
+use crate::features::EditFacts;
+use crate::locate::Edit;
+use crate::model::Op;
+
+/// The outlier kinds and the count each one tests.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub enum Kind {
+    /// Deletions.
+    DeletionBurst,
+    /// Distinct newcomer accounts editing the cell.
+    NewcomerSurge,
+    /// Non-maritime objects created in water far from land.
+    OffshoreFabrication,
+    /// Names changed to advert-like text.
+    RenameSpam,
+    /// Edits from changesets scoring at or above the flag threshold.
+    ScoreHotspot,
+}
+
+impl Kind {
+    /// All kinds, in reporting order.
+    pub const ALL: [Self; 5] = [
+        Self::DeletionBurst,
+        Self::NewcomerSurge,
+        Self::OffshoreFabrication,
+        Self::RenameSpam,
+        Self::ScoreHotspot,
+    ];
+
+    /// The name used in `summary.json`.
+    #[must_use]
+    pub const fn name(self) -> &'static str {
+        match self {
+            Self::DeletionBurst => "deletion_burst",
+            Self::NewcomerSurge => "newcomer_surge",
+            Self::OffshoreFabrication => "offshore_fabrication",
+            Self::RenameSpam => "rename_spam",
+            Self::ScoreHotspot => "score_hotspot",
+        }
+    }
+
+    /// What the count measures, in words.
+    #[must_use]
+    pub const fn measure(self) -> &'static str {
+        match self {
+            Self::DeletionBurst => "deletions",
+            Self::NewcomerSurge => "newcomer accounts editing",
+            Self::OffshoreFabrication => "non-maritime objects created in water",
+            Self::RenameSpam => "names changed to advert-like text",
+            Self::ScoreHotspot => "edits from flagged changesets",
+        }
+    }
+
+    const fn index(self) -> usize {
+        self as usize
+    }
+}
+
+/// Counts of one cell in one week.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct CellWeek {
+    pub edits: u64,
+    pub creates: u64,
+    pub modifies: u64,
+    pub deletes: u64,
+    pub newcomer_edits: u64,
+    pub offshore_creates: u64,
+    pub spam_renames: u64,
+    pub flagged_edits: u64,
+    /// Distinct mappers (uids), sorted.
+    pub mappers: Vec<i64>,
+    /// Distinct newcomer mappers (uids), sorted.
+    pub newcomers: Vec<i64>,
+}
+
+impl CellWeek {
+    /// The count a kind tests.
+    #[must_use]
+    pub fn value(&self, k: Kind) -> u64 {
+        match k {
+            Kind::DeletionBurst => self.deletes,
+            Kind::NewcomerSurge => self.newcomers.len() as u64,
+            Kind::OffshoreFabrication => self.offshore_creates,
+            Kind::RenameSpam => self.spam_renames,
+            Kind::ScoreHotspot => self.flagged_edits,
+        }
+    }
+}
+
+/// Cell-week counts over an analysis window of consecutive weeks; the last week is the report
+/// week.
+#[derive(Debug, Clone)]
+pub struct CellWeeks {
+    pub resolution: Resolution,
+    /// Number of weeks; index `weeks - 1` is the report week.
+    pub weeks: usize,
+    /// Per cell, one entry per week (sorted by cell for deterministic output).
+    pub cells: BTreeMap<CellIndex, Vec<CellWeek>>,
+    /// Report week only: per cell and kind, each changeset's contribution.
+    pub contributions: HashMap<(CellIndex, Kind), BTreeMap<i64, u64>>,
+}
+
+impl CellWeeks {
+    /// A cell's weeks, or `None` if it had no edit in the window.
+    #[must_use]
+    pub fn get(&self, c: CellIndex) -> Option<&[CellWeek]> {
+        self.cells.get(&c).map(Vec::as_slice)
+    }
+}
+
+/// The H3 cell of a position.
+#[must_use]
+pub fn cell_of(pos: crate::model::Coord, res: Resolution) -> Option<CellIndex> {
+    LatLng::new(pos.lat(), pos.lon()).ok().map(|ll| ll.to_cell(res))
+}
+
+/// Aggregates placed edits. `week_of[i]` is edit `i`'s week index in the window (`None`
+/// outside), `flagged(changeset)` says whether its changeset is flagged.
+#[must_use]
+pub fn aggregate(
+    edits: &[Edit],
+    facts: &[EditFacts],
+    week_of: &[Option<usize>],
+    weeks: usize,
+    res: Resolution,
+    flagged: &dyn Fn(i64) -> bool,
+) -> CellWeeks {
+    let mut cells: BTreeMap<CellIndex, Vec<CellWeek>> = BTreeMap::new();
+    let mut contributions: HashMap<(CellIndex, Kind), BTreeMap<i64, u64>> = HashMap::new();
+    for ((e, f), w) in edits.iter().zip(facts).zip(week_of) {
+        let (Some(w), Some(pos)) = (*w, e.pos) else {
+            continue;
+        };
+        let Some(cell) = cell_of(pos, res) else {
+            continue;
+        };
+        let cw = &mut cells.entry(cell).or_insert_with(|| vec![CellWeek::default(); weeks])[w];
+        cw.edits += 1;
+        match e.op {
+            Op::Create => cw.creates += 1,
+            Op::Modify => cw.modifies += 1,
+            Op::Delete => cw.deletes += 1,
+        }
+        let is_flagged = flagged(e.changeset);
+        cw.newcomer_edits += u64::from(f.newcomer);
+        cw.offshore_creates += u64::from(f.offshore_create);
+        cw.spam_renames += u64::from(f.spam_name);
+        cw.flagged_edits += u64::from(is_flagged);
+        cw.mappers.push(e.uid);
+        if f.newcomer {
+            cw.newcomers.push(e.uid);
+        }
+        if w + 1 == weeks {
+            let mut add = |k: Kind, hit: bool| {
+                if hit {
+                    *contributions
+                        .entry((cell, k))
+                        .or_default()
+                        .entry(e.changeset)
+                        .or_default() += 1;
+                }
+            };
+            add(Kind::DeletionBurst, e.op == Op::Delete);
+            add(Kind::NewcomerSurge, f.newcomer);
+            add(Kind::OffshoreFabrication, f.offshore_create);
+            add(Kind::RenameSpam, f.spam_name);
+            add(Kind::ScoreHotspot, is_flagged);
+        }
+    }
+    for weeks in cells.values_mut() {
+        for cw in weeks {
+            cw.mappers.sort_unstable();
+            cw.mappers.dedup();
+            cw.newcomers.sort_unstable();
+            cw.newcomers.dedup();
+        }
+    }
+    debug_assert!(Kind::ALL.iter().enumerate().all(|(i, k)| k.index() == i));
+    CellWeeks {
+        resolution: res,
+        weeks,
+        cells,
+        contributions,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cell_counts_per_resolution() {
+        // Source: H3 documentation, "Tables of cell statistics across resolutions": the number
+        // of cells at resolution r is 2 + 120 * 7^r.
+        for r in 0..=15u8 {
+            let res = Resolution::try_from(r).unwrap();
+            assert_eq!(res.cell_count(), 2 + 120 * 7u64.pow(u32::from(r)));
+        }
+    }
+}

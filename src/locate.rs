@@ -1,0 +1,306 @@
+//! Gives every edit of an analysis window a position.
+//!
+//! Order of evidence: the element's own coordinates (nodes); the node-location index (latest
+//! known position of each node, kept in the `elements` table from the snapshot and every diff)
+//! for deleted nodes without coordinates, ways (centroid of their nodes) and relations (centroid
+//! of their node and way members); then the centre of the changeset's bounding box. An edit that
+//! none of these can place is counted as unplaced, never silently dropped.
+
+use std::collections::HashMap;
+
+use rusqlite::{params, OptionalExtension};
+
+use crate::model::{Coord, ElementType, Op};
+use crate::store::{member_decode, unpack_refs, Store, StoreError};
+use crate::summary::Placement;
+
+/// How an edit got its position.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PlacedBy {
+    Own,
+    NodeIndex,
+    ChangesetBox,
+    Unplaced,
+}
+
+/// One edit of the window, with its position and the state it replaced.
+#[derive(Debug, Clone)]
+pub struct Edit {
+    pub etype: ElementType,
+    pub eid: i64,
+    pub version: i64,
+    pub op: Op,
+    pub changeset: i64,
+    pub uid: i64,
+    pub user: String,
+    pub ts: i64,
+    pub pos: Option<Coord>,
+    pub placed_by: PlacedBy,
+    /// Packed tags of this version (empty for deletions).
+    pub tags: String,
+    /// Packed tags of the version it replaced, when known.
+    pub prev_tags: Option<String>,
+    pub prev_version: Option<i64>,
+    pub prev_ts: Option<i64>,
+    pub prev_pos: Option<Coord>,
+}
+
+/// Changeset metadata from the store.
+#[derive(Debug, Clone, Default)]
+pub struct ChangesetMeta {
+    pub id: i64,
+    pub uid: i64,
+    pub user: String,
+    pub created_at: i64,
+    pub closed_at: Option<i64>,
+    pub bbox: Option<(Coord, Coord)>,
+    pub comment: String,
+    pub editor: String,
+    pub num_changes: i64,
+}
+
+/// Most members followed when placing a relation; enough for a centroid, bounded for huge ones.
+const MAX_MEMBERS_FOR_CENTROID: usize = 500;
+
+struct NodeIndex<'a> {
+    store: &'a Store,
+    cache: HashMap<i64, Option<Coord>>,
+}
+
+impl NodeIndex<'_> {
+    fn node(&mut self, id: i64) -> Result<Option<Coord>, StoreError> {
+        if let Some(c) = self.cache.get(&id) {
+            return Ok(*c);
+        }
+        let mut st = self
+            .store
+            .conn()
+            .prepare_cached("SELECT lat_e7, lon_e7 FROM elements WHERE etype = 0 AND eid = ?1")
+            .map_err(|e| self.store.map_err(e))?;
+        let c = st
+            .query_row([id], |r| Ok((r.get::<_, Option<i64>>(0)?, r.get::<_, Option<i64>>(1)?)))
+            .optional()
+            .map_err(|e| self.store.map_err(e))?
+            .and_then(|(a, b)| Coord::from_e7(a?, b?));
+        self.cache.insert(id, c);
+        Ok(c)
+    }
+
+    fn stored_refs(&self, t: ElementType, id: i64) -> Result<Option<Vec<u8>>, StoreError> {
+        let mut st = self
+            .store
+            .conn()
+            .prepare_cached("SELECT refs FROM elements WHERE etype = ?1 AND eid = ?2")
+            .map_err(|e| self.store.map_err(e))?;
+        Ok(st
+            .query_row(params![t.code(), id], |r| r.get::<_, Option<Vec<u8>>>(0))
+            .optional()
+            .map_err(|e| self.store.map_err(e))?
+            .flatten())
+    }
+
+    fn way_centroid(&mut self, refs: &[u8]) -> Result<Option<Coord>, StoreError> {
+        let mut acc = Centroid::default();
+        for r in unpack_refs(refs) {
+            if let Some(c) = self.node(r)? {
+                acc.add(c);
+            }
+        }
+        Ok(acc.get())
+    }
+
+    fn relation_centroid(&mut self, members: &[u8]) -> Result<Option<Coord>, StoreError> {
+        let mut acc = Centroid::default();
+        for code in unpack_refs(members).take(MAX_MEMBERS_FOR_CENTROID) {
+            let Some((t, id)) = member_decode(code) else {
+                continue;
+            };
+            let c = match t {
+                ElementType::Node => self.node(id)?,
+                ElementType::Way => match self.stored_refs(ElementType::Way, id)? {
+                    Some(r) => self.way_centroid(&r)?,
+                    None => None,
+                },
+                ElementType::Relation => None,
+            };
+            if let Some(c) = c {
+                acc.add(c);
+            }
+        }
+        Ok(acc.get())
+    }
+}
+
+/// Mean of positions in 1e-7 degree units. Ways and relations spanning the antimeridian would
+/// average to the wrong side; no such region is supported yet (documented in README).
+#[derive(Default)]
+struct Centroid {
+    lat: i64,
+    lon: i64,
+    n: i64,
+}
+
+impl Centroid {
+    fn add(&mut self, c: Coord) {
+        self.lat += i64::from(c.lat_e7());
+        self.lon += i64::from(c.lon_e7());
+        self.n += 1;
+    }
+    fn get(&self) -> Option<Coord> {
+        (self.n > 0).then(|| Coord::from_e7(self.lat / self.n, self.lon / self.n)).flatten()
+    }
+}
+
+/// Loads changeset metadata by id.
+///
+/// # Errors
+/// On database failure.
+pub fn load_changesets(store: &Store, ids: impl IntoIterator<Item = i64>) -> Result<HashMap<i64, ChangesetMeta>, StoreError> {
+    let mut st = store
+        .conn()
+        .prepare_cached(
+            "SELECT id, uid, user, created_at, closed_at, min_lat, min_lon, max_lat, max_lon, comment, editor, num_changes
+             FROM changesets WHERE id = ?1",
+        )
+        .map_err(|e| store.map_err(e))?;
+    let mut out = HashMap::new();
+    for id in ids {
+        let row = st
+            .query_row([id], |r| {
+                let bbox = match (
+                    r.get::<_, Option<f64>>(5)?,
+                    r.get::<_, Option<f64>>(6)?,
+                    r.get::<_, Option<f64>>(7)?,
+                    r.get::<_, Option<f64>>(8)?,
+                ) {
+                    (Some(a), Some(b), Some(c), Some(d)) => {
+                        Coord::from_degrees(a, b).zip(Coord::from_degrees(c, d))
+                    }
+                    _ => None,
+                };
+                Ok(ChangesetMeta {
+                    id: r.get(0)?,
+                    uid: r.get(1)?,
+                    user: r.get(2)?,
+                    created_at: r.get(3)?,
+                    closed_at: r.get(4)?,
+                    bbox,
+                    comment: r.get(9)?,
+                    editor: r.get(10)?,
+                    num_changes: r.get(11)?,
+                })
+            })
+            .optional()
+            .map_err(|e| store.map_err(e))?;
+        if let Some(m) = row {
+            out.insert(id, m);
+        }
+    }
+    Ok(out)
+}
+
+/// Loads and places every edit with `from <= ts < to`, ordered by time.
+///
+/// # Errors
+/// On database failure.
+pub fn load_edits(store: &Store, from: i64, to: i64) -> Result<(Vec<Edit>, HashMap<i64, ChangesetMeta>), StoreError> {
+    let mut st = store
+        .conn()
+        .prepare(
+            "SELECT etype, eid, version, op, changeset, uid, user, ts, lat_e7, lon_e7, tags, refs,
+                    prev_version, prev_ts, prev_tags, prev_lat_e7, prev_lon_e7
+             FROM edits WHERE ts >= ?1 AND ts < ?2 ORDER BY ts, etype, eid, version",
+        )
+        .map_err(|e| store.map_err(e))?;
+    let rows = st
+        .query_map(params![from, to], |r| {
+            let pos = match (r.get::<_, Option<i64>>(8)?, r.get::<_, Option<i64>>(9)?) {
+                (Some(a), Some(b)) => Coord::from_e7(a, b),
+                _ => None,
+            };
+            let prev_pos = match (r.get::<_, Option<i64>>(15)?, r.get::<_, Option<i64>>(16)?) {
+                (Some(a), Some(b)) => Coord::from_e7(a, b),
+                _ => None,
+            };
+            Ok((
+                Edit {
+                    etype: ElementType::from_code(r.get(0)?).unwrap_or(ElementType::Node),
+                    eid: r.get(1)?,
+                    version: r.get(2)?,
+                    op: Op::from_code(r.get(3)?).unwrap_or(Op::Modify),
+                    changeset: r.get(4)?,
+                    uid: r.get(5)?,
+                    user: r.get(6)?,
+                    ts: r.get(7)?,
+                    pos,
+                    placed_by: if pos.is_some() { PlacedBy::Own } else { PlacedBy::Unplaced },
+                    tags: r.get(10)?,
+                    prev_tags: r.get(14)?,
+                    prev_version: r.get(12)?,
+                    prev_ts: r.get(13)?,
+                    prev_pos,
+                },
+                r.get::<_, Option<Vec<u8>>>(11)?,
+            ))
+        })
+        .map_err(|e| store.map_err(e))?;
+    let mut edits = Vec::new();
+    let mut index = NodeIndex {
+        store,
+        cache: HashMap::new(),
+    };
+    let mut pending = Vec::new();
+    for row in rows {
+        let (mut e, refs) = row.map_err(|e| store.map_err(e))?;
+        if e.pos.is_none() {
+            let refs = match refs {
+                Some(r) => Some(r),
+                None if e.etype != ElementType::Node => index.stored_refs(e.etype, e.eid)?,
+                None => None,
+            };
+            let c = match e.etype {
+                ElementType::Node => index.node(e.eid)?.or(e.prev_pos),
+                ElementType::Way => match refs {
+                    Some(r) => index.way_centroid(&r)?,
+                    None => None,
+                },
+                ElementType::Relation => match refs {
+                    Some(r) => index.relation_centroid(&r)?,
+                    None => None,
+                },
+            };
+            if let Some(c) = c {
+                e.pos = Some(c);
+                e.placed_by = PlacedBy::NodeIndex;
+            } else {
+                pending.push(edits.len());
+            }
+        }
+        edits.push(e);
+    }
+    let mut ids: Vec<i64> = edits.iter().map(|e| e.changeset).collect();
+    ids.sort_unstable();
+    ids.dedup();
+    let metas = load_changesets(store, ids)?;
+    for i in pending {
+        let e = &mut edits[i];
+        if let Some((lo, hi)) = metas.get(&e.changeset).and_then(|m| m.bbox) {
+            e.pos = Coord::from_e7(
+                (i64::from(lo.lat_e7()) + i64::from(hi.lat_e7())) / 2,
+                (i64::from(lo.lon_e7()) + i64::from(hi.lon_e7())) / 2,
+            );
+            e.placed_by = PlacedBy::ChangesetBox;
+        }
+    }
+    Ok((edits, metas))
+}
+
+/// Adds one edit's placement to the counts.
+pub fn count_placement(p: &mut Placement, by: PlacedBy) {
+    match by {
+        PlacedBy::Own => p.own_coordinates += 1,
+        PlacedBy::NodeIndex => p.node_index += 1,
+        PlacedBy::ChangesetBox => p.changeset_bbox += 1,
+        PlacedBy::Unplaced => p.unplaced += 1,
+    }
+}

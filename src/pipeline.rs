@@ -1,0 +1,513 @@
+//! The report command's pipeline: from the state database to the report folder.
+//!
+//! store → locate → features → score → cells → baseline/detect per region → render → report.
+//! [`analyse`] does the computing and returns plain data (what tests inspect); [`write`] turns
+//! it into files.
+
+use std::collections::{BTreeMap, BTreeSet, HashMap, HashSet};
+use std::path::{Path, PathBuf};
+
+use h3o::{CellIndex, LatLng, Resolution};
+
+use crate::cells::{aggregate, CellWeeks, Kind};
+use crate::detect::{detect, DetectConfig};
+use crate::features::{changeset_features, edit_facts, FeatureConfig, MapperHistory};
+use crate::land::{Land, LandError};
+use crate::locate::{count_placement, load_edits};
+use crate::model::{IsoWeek, Op};
+use crate::progress::Progress;
+use crate::regions::{Region, RegionError};
+use crate::render::{Colormap, HeatCell, HeatMap, RenderError, Scale};
+use crate::report::{PageContext, ReportError};
+use crate::score::{score, Scored};
+use crate::store::{Store, StoreError};
+use crate::summary::{
+    BaselineCounts, ChangesetRow, Counts, FlaggedChangeset, Outlier, Placement, RegionReport,
+    RegionSummary, Summary, TrendPoint, SCHEMA_VERSION,
+};
+
+/// Errors of the report pipeline.
+#[derive(Debug, thiserror::Error)]
+pub enum PipelineError {
+    #[error(transparent)]
+    Store(#[from] StoreError),
+    #[error(transparent)]
+    Land(#[from] LandError),
+    #[error(transparent)]
+    Region(#[from] RegionError),
+    #[error(transparent)]
+    Render(#[from] RenderError),
+    #[error(transparent)]
+    Report(#[from] ReportError),
+    #[error("{path}: {message}")]
+    NoData { path: PathBuf, message: String },
+}
+
+/// Settings of a report run.
+#[derive(Debug, Clone)]
+pub struct ReportOptions {
+    /// Report week; default: the last complete ISO week in the data.
+    pub week: Option<IsoWeek>,
+    pub regions: Option<PathBuf>,
+    pub land: Option<PathBuf>,
+    /// H3 resolution; default from the extent of the week's edits.
+    pub resolution: Option<Resolution>,
+    pub baseline_weeks: u32,
+    /// Changesets scoring at or above this are flagged.
+    pub flag_threshold: f64,
+    pub features: FeatureConfig,
+    pub detect: DetectConfig,
+    pub colormap: Colormap,
+    /// Shown as the report's "generated at" (injected so output is reproducible).
+    pub generated_at: String,
+    pub changeset_url: String,
+    pub user_url: String,
+}
+
+impl Default for ReportOptions {
+    fn default() -> Self {
+        Self {
+            week: None,
+            regions: None,
+            land: None,
+            resolution: None,
+            baseline_weeks: 12,
+            flag_threshold: 0.5,
+            features: FeatureConfig::default(),
+            detect: DetectConfig::default(),
+            colormap: Colormap::Viridis,
+            generated_at: String::new(),
+            changeset_url: "https://www.openstreetmap.org/changeset/".to_owned(),
+            user_url: "https://www.openstreetmap.org/user/".to_owned(),
+        }
+    }
+}
+
+/// A region's week, ready to draw and write.
+pub struct RegionAnalysis {
+    pub report: RegionReport,
+    /// Cells of the region with their report-week counts (for images).
+    pub cells: Vec<CellIndex>,
+    pub extent: geo::Rect<f64>,
+}
+
+/// Everything a report run computed.
+pub struct Analysis {
+    pub summary: Summary,
+    pub regions: Vec<RegionAnalysis>,
+    pub cell_weeks: CellWeeks,
+    pub land: Land,
+}
+
+/// The default week: the week of the last edit if the data reaches its Sunday, else the one
+/// before.
+fn default_week(store: &Store) -> Result<IsoWeek, PipelineError> {
+    let last: Option<i64> = store
+        .conn()
+        .query_row("SELECT MAX(ts) FROM edits", [], |r| r.get(0))
+        .map_err(|e| store.map_err(e))?;
+    let no_data = || PipelineError::NoData {
+        path: store.path().to_owned(),
+        message: "no edits in the database: ingest osmChange files first".to_owned(),
+    };
+    let last = last.ok_or_else(no_data)?;
+    let w = IsoWeek::of_unix(last).ok_or_else(no_data)?;
+    Ok(if last >= w.start_unix() + 6 * 86_400 { w } else { w.offset(-1) })
+}
+
+/// Resolution by the size of the area edited: 8 (about 0.7 km² cells) for a town, down to 5
+/// for a country. Common practice, no source: a few hundred to a few thousand cells per map.
+fn default_resolution(extent_km: f64) -> Resolution {
+    match extent_km {
+        d if d < 60.0 => Resolution::Eight,
+        d if d < 300.0 => Resolution::Seven,
+        d if d < 1500.0 => Resolution::Six,
+        _ => Resolution::Five,
+    }
+}
+
+fn bbox_of(points: impl Iterator<Item = (f64, f64)>) -> Option<geo::Rect<f64>> {
+    let mut b: Option<(f64, f64, f64, f64)> = None;
+    for (x, y) in points {
+        b = Some(match b {
+            None => (x, y, x, y),
+            Some((a, c, d, e)) => (a.min(x), c.min(y), d.max(x), e.max(y)),
+        });
+    }
+    b.map(|(a, c, d, e)| geo::Rect::new((a, c), (d, e)))
+}
+
+/// Runs every analysis stage.
+///
+/// # Errors
+/// On database failure, unreadable land or regions files, or when there is no data.
+#[allow(clippy::too_many_lines, reason = "one linear pipeline, easier to read whole")]
+pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Result<Analysis, PipelineError> {
+    let week = match opts.week {
+        Some(w) => w,
+        None => default_week(store)?,
+    };
+    let n_hist = opts.baseline_weeks.max(1);
+    let first_week = week.offset(-i64::from(n_hist));
+    let weeks = n_hist as usize + 1;
+    let from = first_week.start_unix();
+    let to = week.offset(1).start_unix();
+    progress.note(&format!("report week {week}, baseline {first_week} to {}", week.offset(-1)));
+
+    let land = match &opts.land {
+        Some(p) => Land::from_geojson_file(p)?,
+        None => Land::empty(),
+    };
+    let regions: Vec<Region> = match &opts.regions {
+        Some(p) => crate::regions::load(p)?,
+        None => crate::regions::everything(),
+    };
+
+    let (edits, metas) = load_edits(store, from, to)?;
+    if !edits.iter().any(|e| e.ts >= week.start_unix()) {
+        return Err(PipelineError::NoData {
+            path: store.path().to_owned(),
+            message: format!("no edits in the report week {week}"),
+        });
+    }
+    let mut first_edit: HashMap<i64, i64> = HashMap::new();
+    for e in &edits {
+        first_edit.entry(e.uid).and_modify(|t| *t = (*t).min(e.ts)).or_insert(e.ts);
+    }
+    let mut uids: Vec<i64> = first_edit.keys().copied().collect();
+    uids.sort_unstable();
+    let hist = MapperHistory::load(store, uids)?;
+    let facts = edit_facts(&edits, &hist, &first_edit, &land, &opts.features);
+    let features = changeset_features(&edits, &facts, &metas, &hist, &first_edit);
+    let scored: HashMap<i64, (Scored, usize)> = features
+        .iter()
+        .enumerate()
+        .map(|(i, f)| (f.id, (score(f), i)))
+        .collect();
+    let threshold = opts.flag_threshold;
+    let flagged = |cs: i64| scored.get(&cs).is_some_and(|s| s.0.score >= threshold);
+
+    let week_of: Vec<Option<usize>> = edits
+        .iter()
+        .map(|e| {
+            let w = (e.ts - from).div_euclid(604_800);
+            usize::try_from(w).ok().filter(|&w| w < weeks)
+        })
+        .collect();
+    let report_idx = weeks - 1;
+    let res = opts.resolution.unwrap_or_else(|| {
+        let ext = bbox_of(
+            edits
+                .iter()
+                .zip(&week_of)
+                .filter(|(_, w)| **w == Some(report_idx))
+                .filter_map(|(e, _)| e.pos.map(|p| (p.lon(), p.lat()))),
+        );
+        let km = ext.map_or(0.0, |r| {
+            let a = crate::model::Coord::from_degrees(r.min().y, r.min().x);
+            let b = crate::model::Coord::from_degrees(r.max().y, r.max().x);
+            a.zip(b).map_or(0.0, |(a, b)| a.distance_m(b) / 1000.0)
+        });
+        default_resolution(km)
+    });
+    let cw = aggregate(&edits, &facts, &week_of, weeks, res, &flagged);
+
+    // Which region each cell, and so each edit, belongs to.
+    let region_of_cell: HashMap<CellIndex, usize> = cw
+        .cells
+        .keys()
+        .filter_map(|&c| crate::regions::region_of(&regions, c).map(|r| (c, r)))
+        .collect();
+    let edit_region: Vec<Option<usize>> = edits
+        .iter()
+        .map(|e| {
+            e.pos
+                .and_then(|p| crate::cells::cell_of(p, res))
+                .and_then(|c| region_of_cell.get(&c).copied())
+        })
+        .collect();
+
+    let slugs = crate::report::assign_slugs(&regions.iter().map(|r| r.name.as_str()).collect::<Vec<_>>());
+    let bar = progress.steps(regions.len() as u64, "analyse");
+    let mut out_regions = Vec::new();
+    for (ri, region) in regions.iter().enumerate() {
+        let cells: Vec<CellIndex> = cw
+            .cells
+            .keys()
+            .copied()
+            .filter(|c| region_of_cell.get(c) == Some(&ri))
+            .collect();
+        let tests = detect(&cw, &cells, !land.is_empty(), &opts.detect);
+
+        // Counts for the week and the trend.
+        let mut counts = Counts::default();
+        let mut placement = Placement::default();
+        let mut trend: Vec<TrendPoint> = (0..weeks)
+            .map(|w| TrendPoint {
+                week: first_week.offset(w as i64).to_string(),
+                edits: 0,
+                deletes: 0,
+                newcomer_edits: 0,
+            })
+            .collect();
+        let mut week_sets: Vec<(HashSet<i64>, HashSet<i64>)> = vec![Default::default(); weeks];
+        let mut mappers = BTreeSet::new();
+        let mut cs_rows: BTreeMap<i64, (u64, u64, u64)> = BTreeMap::new();
+        for (i, e) in edits.iter().enumerate() {
+            let Some(w) = week_of[i] else { continue };
+            let in_region = edit_region[i] == Some(ri) || (e.pos.is_none() && ri == 0 && w == report_idx);
+            if !in_region {
+                continue;
+            }
+            trend[w].edits += 1;
+            trend[w].deletes += u64::from(e.op == Op::Delete);
+            trend[w].newcomer_edits += u64::from(facts[i].newcomer);
+            week_sets[w].0.insert(e.changeset);
+            if facts[i].newcomer {
+                week_sets[w].1.insert(e.uid);
+            }
+            if w == report_idx {
+                count_placement(&mut placement, e.placed_by);
+                counts.edits += 1;
+                let row = cs_rows.entry(e.changeset).or_default();
+                match e.op {
+                    Op::Create => {
+                        counts.creates += 1;
+                        row.0 += 1;
+                    }
+                    Op::Modify => {
+                        counts.modifies += 1;
+                        row.1 += 1;
+                    }
+                    Op::Delete => {
+                        counts.deletes += 1;
+                        row.2 += 1;
+                    }
+                }
+                mappers.insert(e.uid);
+            }
+        }
+        counts.changesets = cs_rows.len() as u64;
+        counts.mappers = mappers.len() as u64;
+        counts.newcomers = week_sets[report_idx].1.len() as u64;
+        #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+        let baseline_counts = {
+            let n = report_idx.max(1) as f64;
+            BaselineCounts {
+                weeks: n_hist,
+                edits: trend[..report_idx].iter().map(|t| t.edits as f64).sum::<f64>() / n,
+                deletes: trend[..report_idx].iter().map(|t| t.deletes as f64).sum::<f64>() / n,
+                newcomers: week_sets[..report_idx].iter().map(|s| s.1.len() as f64).sum::<f64>() / n,
+                changesets: week_sets[..report_idx].iter().map(|s| s.0.len() as f64).sum::<f64>() / n,
+            }
+        };
+
+        // Changesets of the week in this region.
+        let mut rows: Vec<ChangesetRow> = cs_rows
+            .iter()
+            .filter_map(|(&id, &(c, m, d))| {
+                let (s, fi) = scored.get(&id)?;
+                let f = &features[*fi];
+                Some(ChangesetRow {
+                    id,
+                    user: f.user.clone(),
+                    uid: f.uid,
+                    created_at: f.created_at,
+                    account_age_days: (f.account_age_days * 10.0).round() / 10.0,
+                    creates: c,
+                    modifies: m,
+                    deletes: d,
+                    comment: f.comment.clone(),
+                    editor: f.editor.clone(),
+                    score: s.score,
+                    reasons: s.reasons.iter().map(|r| r.1.clone()).collect(),
+                    flagged: s.score >= threshold,
+                })
+            })
+            .collect();
+        rows.sort_by(|a, b| b.score.total_cmp(&a.score).then(a.id.cmp(&b.id)));
+        let flagged_changesets: Vec<FlaggedChangeset> = rows
+            .iter()
+            .filter(|r| r.flagged)
+            .map(|r| FlaggedChangeset {
+                id: r.id,
+                user: r.user.clone(),
+                uid: r.uid,
+                score: r.score,
+                reasons: r.reasons.clone(),
+            })
+            .collect();
+        counts.flagged_changesets = flagged_changesets.len() as u64;
+        let user_of: HashMap<i64, &str> = rows.iter().map(|r| (r.id, r.user.as_str())).collect();
+
+        // Outliers, strongest evidence first.
+        let mut outs: Vec<_> = tests.iter().filter(|t| t.outlier).collect();
+        outs.sort_by(|a, b| {
+            a.p_value
+                .total_cmp(&b.p_value)
+                .then(a.kind.cmp(&b.kind))
+                .then(a.cell.cmp(&b.cell))
+        });
+        let mut outliers = Vec::new();
+        let mut rings = Vec::new();
+        for t in &outs {
+            let mut contrib: Vec<(i64, u64)> = cw
+                .contributions
+                .get(&(t.cell, t.kind))
+                .map(|m| m.iter().map(|(&k, &v)| (k, v)).collect())
+                .unwrap_or_default();
+            contrib.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.cmp(&b.0)));
+            let mut names: Vec<String> = Vec::new();
+            for (id, _) in &contrib {
+                if let Some(u) = user_of.get(id) {
+                    if !names.iter().any(|n| n == u) {
+                        names.push((*u).to_owned());
+                    }
+                }
+            }
+            let c = LatLng::from(t.cell);
+            outliers.push(Outlier {
+                kind: t.kind.name().to_owned(),
+                cell: t.cell.to_string(),
+                lat: (c.lat() * 1e6).round() / 1e6,
+                lon: (c.lng() * 1e6).round() / 1e6,
+                observed: t.observed,
+                expected: (t.expected * 1000.0).round() / 1000.0,
+                p_value: t.p_value,
+                q_value: t.q_value,
+                measure: t.kind.measure().to_owned(),
+                baseline_source: if t.own_history { "own" } else { "neighbourhood" }.to_owned(),
+                changesets: contrib.iter().map(|c| c.0).collect(),
+                mappers: names,
+            });
+            let mut ring: Vec<(f64, f64)> = t.cell.boundary().iter().map(|ll| (ll.lng(), ll.lat())).collect();
+            if let Some(&first) = ring.first() {
+                ring.push(first);
+            }
+            rings.push(ring);
+        }
+        counts.outlier_cells = outs.iter().map(|t| t.cell).collect::<HashSet<_>>().len() as u64;
+
+        let extent = region
+            .area
+            .as_ref()
+            .and_then(geo::BoundingRect::bounding_rect)
+            .or_else(|| bbox_of(cells.iter().map(|&c| LatLng::from(c)).map(|ll| (ll.lng(), ll.lat()))))
+            .unwrap_or_else(|| geo::Rect::new((-1.0, -1.0), (1.0, 1.0)));
+        out_regions.push(RegionAnalysis {
+            report: RegionReport {
+                summary: RegionSummary {
+                    name: region.name.clone(),
+                    slug: slugs[ri].clone(),
+                    week: week.to_string(),
+                    counts,
+                    baseline_counts,
+                    placement,
+                    outliers,
+                    flagged_changesets,
+                },
+                changesets: rows,
+                trend,
+                outlier_rings: rings,
+                skipped: store.skipped()?,
+                images: Vec::new(),
+            },
+            cells,
+            extent,
+        });
+        bar.inc(1);
+    }
+    bar.finish_and_clear();
+    let summary = Summary {
+        schema: SCHEMA_VERSION,
+        generator: format!("hexvigil {}", env!("CARGO_PKG_VERSION")),
+        week: week.to_string(),
+        resolution: u8::from(res),
+        baseline_weeks: n_hist,
+        regions: out_regions.iter().map(|r| r.report.summary.clone()).collect(),
+    };
+    Ok(Analysis {
+        summary,
+        regions: out_regions,
+        cell_weeks: cw,
+        land,
+    })
+}
+
+/// Draws the images and writes the report folder.
+///
+/// # Errors
+/// When an image or a file cannot be written.
+pub fn write(analysis: &mut Analysis, out: &Path, opts: &ReportOptions) -> Result<(), PipelineError> {
+    let report_idx = analysis.cell_weeks.weeks - 1;
+    for r in &mut analysis.regions {
+        let dir = out.join(&r.report.summary.slug);
+        std::fs::create_dir_all(&dir).map_err(|source| ReportError::Io {
+            path: dir.clone(),
+            source,
+        })?;
+        let outlined: Vec<CellIndex> = r
+            .report
+            .summary
+            .outliers
+            .iter()
+            .filter_map(|o| o.cell.parse().ok())
+            .collect();
+        let name = &r.report.summary.name;
+        let week = &r.report.summary.week;
+        let images = [
+            ("heat.png", "edits", "edits per cell in the week", None),
+            ("heat-deletions.png", "deletions", "deletions per cell in the week", Some(Kind::DeletionBurst)),
+        ];
+        r.report.images.clear();
+        for (file, what, legend, kind) in images {
+            let cells: Vec<HeatCell> = r
+                .cells
+                .iter()
+                .filter_map(|&c| {
+                    let cw = &analysis.cell_weeks.get(c)?[report_idx];
+                    #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+                    let value = kind.map_or(cw.edits, |k| cw.value(k)) as f64;
+                    Some(HeatCell { cell: c, value })
+                })
+                .collect();
+            let total: f64 = cells.iter().map(|c| c.value).sum();
+            let title = format!("{name}: {what}, {week}");
+            let subtitle = format!(
+                "H3 resolution {} · {} {what} · outlier cells outlined",
+                analysis.summary.resolution, total
+            );
+            let map = HeatMap {
+                title: &title,
+                subtitle: &subtitle,
+                legend_label: legend,
+                cells: &cells,
+                outlined: &outlined,
+                land: &analysis.land,
+                extent: r.extent,
+                colormap: opts.colormap,
+                scale: Scale::Log,
+                width: 1200,
+            };
+            let pix = crate::render::render_heat(&map)?;
+            crate::render::save_png(&pix, &dir.join(file))?;
+            r.report.images.push((
+                file.to_owned(),
+                format!("{what} per H3 cell in {week}; outlier cells outlined"),
+            ));
+        }
+    }
+    let reports: Vec<RegionReport> = analysis.regions.iter().map(|r| r.report.clone()).collect();
+    let ctx = PageContext {
+        generated_at: &opts.generated_at,
+        tool_version: env!("CARGO_PKG_VERSION"),
+        resolution: analysis.summary.resolution,
+        baseline_weeks: analysis.summary.baseline_weeks,
+        fdr: opts.detect.fdr,
+        flag_threshold: opts.flag_threshold,
+        changeset_url: &opts.changeset_url,
+        user_url: &opts.user_url,
+    };
+    crate::report::write_report(out, &analysis.summary, &reports, &ctx)?;
+    Ok(())
+}
