@@ -8,6 +8,7 @@
 pub mod geojson_io;
 pub mod land;
 pub mod model;
+pub mod render;
 pub mod summary;
 pub mod ingest;
 pub mod progress;
