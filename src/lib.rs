@@ -13,3 +13,4 @@ pub mod summary;
 pub mod ingest;
 pub mod progress;
 pub mod store;
+pub mod report;
