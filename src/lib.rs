@@ -14,3 +14,4 @@ pub mod ingest;
 pub mod progress;
 pub mod store;
 pub mod report;
+pub mod demo;

@@ -1,0 +1,565 @@
+//! The scenario's map state with full history semantics: every node, way and relation with its
+//! current version, tags and visibility, a coarse spatial index for picking nearby objects, and
+//! [`Session`], the only way the diff period changes the map. A session applies one changeset's
+//! edits (version + 1 each, deleted ways take their orphaned nodes with them), writes each edit
+//! to the day's osmChange file and keeps the changeset's bounding box and change count.
+
+use super::geography::P;
+use super::people::User;
+use super::sample::mix;
+use super::xml::DiffWriter;
+use super::DemoError;
+use crate::model::Op;
+
+/// First snapshot node id; new nodes continue after the snapshot's.
+pub(super) const NODE_BASE: i64 = 50_000_000_000;
+/// First snapshot way id.
+pub(super) const WAY_BASE: i64 = 5_000_000_000;
+/// First snapshot relation id.
+pub(super) const REL_BASE: i64 = 600_000_000;
+
+/// Per-element history metadata.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct Meta {
+    pub version: u32,
+    pub ts: i64,
+    pub cs: i64,
+    pub user: u32,
+}
+
+/// Tags in the order they are written.
+pub(super) type Tags = Vec<(String, String)>;
+
+/// Builds [`Tags`] from string pairs.
+pub(super) fn tags(pairs: &[(&str, &str)]) -> Tags {
+    pairs
+        .iter()
+        .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
+        .collect()
+}
+
+/// Sets or replaces one tag.
+pub(super) fn set_tag(t: &mut Tags, k: &str, v: &str) {
+    match t.iter_mut().find(|(key, _)| key == k) {
+        Some(slot) => v.clone_into(&mut slot.1),
+        None => t.push((k.to_owned(), v.to_owned())),
+    }
+}
+
+/// The value of a tag.
+pub(super) fn tag<'a>(t: &'a Tags, k: &str) -> Option<&'a str> {
+    t.iter().find(|(key, _)| key == k).map(|(_, v)| v.as_str())
+}
+
+/// What an element is, for picking candidates.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Kind {
+    /// An untagged node of a way.
+    Vertex,
+    /// A tagged stand-alone node (amenity, small shop, bench ...).
+    Poi,
+    /// A shop on the town's main street.
+    Shop,
+    /// A buoy or light, legitimately in the water.
+    Seamark,
+    /// A `place=*` node.
+    Place,
+    Building,
+    Street,
+    Path,
+    Landuse,
+    /// An untagged way that is a multipolygon member.
+    Outline,
+}
+
+/// A node.
+pub(super) struct Node {
+    pub lat: i32,
+    pub lon: i32,
+    pub meta: Meta,
+    pub tags: Tags,
+    pub visible: bool,
+    /// Visible ways that use this node.
+    pub refs: u32,
+    pub kind: Kind,
+    /// Last touched by an injected incident: ordinary mappers leave it alone.
+    pub incident: bool,
+}
+
+/// A way.
+pub(super) struct Way {
+    pub nodes: Vec<u32>,
+    pub meta: Meta,
+    pub tags: Tags,
+    pub visible: bool,
+    pub kind: Kind,
+    /// Member of a relation: never deleted.
+    pub in_rel: bool,
+    pub incident: bool,
+}
+
+/// A relation; the scenario's relations have only way members.
+pub(super) struct Relation {
+    pub members: Vec<(u32, &'static str)>,
+    pub meta: Meta,
+    pub tags: Tags,
+}
+
+/// A node or way, by index.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Item {
+    Node(u32),
+    Way(u32),
+}
+
+/// A bounding box in 1e-7 degree units.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct Bbox {
+    pub min_lat: i32,
+    pub min_lon: i32,
+    pub max_lat: i32,
+    pub max_lon: i32,
+}
+
+impl Bbox {
+    pub fn point(lat: i32, lon: i32) -> Self {
+        Self {
+            min_lat: lat,
+            min_lon: lon,
+            max_lat: lat,
+            max_lon: lon,
+        }
+    }
+
+    pub fn extend(b: &mut Option<Self>, lat: i32, lon: i32) {
+        match b {
+            Some(b) => {
+                b.min_lat = b.min_lat.min(lat);
+                b.min_lon = b.min_lon.min(lon);
+                b.max_lat = b.max_lat.max(lat);
+                b.max_lon = b.max_lon.max(lon);
+            }
+            None => *b = Some(Self::point(lat, lon)),
+        }
+    }
+}
+
+/// A changeset's metadata as the changeset dump carries it.
+pub(super) struct ChangesetMeta {
+    pub id: i64,
+    pub user: u32,
+    pub created_at: i64,
+    pub closed_at: i64,
+    pub bbox: Option<Bbox>,
+    pub num_changes: u32,
+    pub tags: Vec<(&'static str, String)>,
+}
+
+/// Grid cell size of the spatial index, km.
+const CELL_KM: f64 = 0.2;
+/// South-west corner of the indexed area, km.
+const GRID_X0: f64 = -22.0;
+const GRID_Y0: f64 = -18.0;
+const GRID_NX: usize = 170;
+const GRID_NY: usize = 180;
+
+/// The map.
+pub(super) struct World {
+    pub nodes: Vec<Node>,
+    pub ways: Vec<Way>,
+    pub relations: Vec<Relation>,
+    cells: Vec<Vec<Item>>,
+}
+
+fn cell_xy(p: P) -> Option<(usize, usize)> {
+    let fx = ((p.x - GRID_X0) / CELL_KM).floor();
+    let fy = ((p.y - GRID_Y0) / CELL_KM).floor();
+    if !(0.0..GRID_NX as f64).contains(&fx) || !(0.0..GRID_NY as f64).contains(&fy) {
+        return None;
+    }
+    #[allow(
+        clippy::cast_possible_truncation,
+        clippy::cast_sign_loss,
+        reason = "range checked"
+    )]
+    Some((fx as usize, fy as usize))
+}
+
+fn idx(v: usize) -> u32 {
+    u32::try_from(v).unwrap_or(u32::MAX)
+}
+
+impl World {
+    pub fn new() -> Self {
+        Self {
+            nodes: Vec::new(),
+            ways: Vec::new(),
+            relations: Vec::new(),
+            cells: (0..GRID_NX * GRID_NY).map(|_| Vec::new()).collect(),
+        }
+    }
+
+    pub fn node_id(i: u32) -> i64 {
+        NODE_BASE + i64::from(i)
+    }
+
+    pub fn way_id(i: u32) -> i64 {
+        WAY_BASE + i64::from(i)
+    }
+
+    pub fn rel_id(i: u32) -> i64 {
+        REL_BASE + i64::from(i)
+    }
+
+    pub fn node(&self, i: u32) -> &Node {
+        &self.nodes[i as usize]
+    }
+
+    pub fn way(&self, i: u32) -> &Way {
+        &self.ways[i as usize]
+    }
+
+    /// A node's position in the frame.
+    pub fn node_p(&self, i: u32) -> P {
+        let n = self.node(i);
+        P::from_e7(n.lat, n.lon)
+    }
+
+    /// Mean of a way's distinct node positions.
+    pub fn way_p(&self, i: u32) -> P {
+        let w = self.way(i);
+        let nodes = match w.nodes.split_last() {
+            Some((last, rest)) if w.nodes.first() == Some(last) => rest,
+            _ => &w.nodes[..],
+        };
+        let (mut x, mut y) = (0.0, 0.0);
+        for &n in nodes {
+            let p = self.node_p(n);
+            x += p.x;
+            y += p.y;
+        }
+        let k = nodes.len().max(1) as f64;
+        P::new(x / k, y / k)
+    }
+
+    /// Where an item is.
+    pub fn item_p(&self, it: Item) -> P {
+        match it {
+            Item::Node(n) => self.node_p(n),
+            Item::Way(w) => self.way_p(w),
+        }
+    }
+
+    fn index(&mut self, p: P, it: Item) {
+        if let Some((x, y)) = cell_xy(p) {
+            self.cells[y * GRID_NX + x].push(it);
+        }
+    }
+
+    /// Adds a node; tagged stand-alone kinds are indexed for picking.
+    pub fn add_node(&mut self, p: P, tags: Tags, kind: Kind, meta: Meta) -> u32 {
+        let (lat, lon) = p.to_e7();
+        let i = idx(self.nodes.len());
+        self.nodes.push(Node {
+            lat,
+            lon,
+            meta,
+            tags,
+            visible: true,
+            refs: 0,
+            kind,
+            incident: false,
+        });
+        if kind != Kind::Vertex {
+            self.index(p, Item::Node(i));
+        }
+        i
+    }
+
+    /// Adds a way over existing nodes and indexes it at its centre.
+    pub fn add_way(&mut self, nodes: Vec<u32>, tags: Tags, kind: Kind, meta: Meta) -> u32 {
+        let i = idx(self.ways.len());
+        let mut seen = nodes.clone();
+        seen.sort_unstable();
+        seen.dedup();
+        for &n in &seen {
+            self.nodes[n as usize].refs += 1;
+        }
+        self.ways.push(Way {
+            nodes,
+            meta,
+            tags,
+            visible: true,
+            kind,
+            in_rel: false,
+            incident: false,
+        });
+        let p = self.way_p(i);
+        self.index(p, Item::Way(i));
+        i
+    }
+
+    /// Adds a relation over existing ways, which become undeletable.
+    pub fn add_relation(&mut self, members: Vec<(u32, &'static str)>, tags: Tags, meta: Meta) {
+        for &(w, _) in &members {
+            self.ways[w as usize].in_rel = true;
+        }
+        self.relations.push(Relation {
+            members,
+            meta,
+            tags,
+        });
+    }
+
+    /// Visible items within `r` km of `p` that `keep` accepts, nearest cells first.
+    pub fn near(&self, p: P, r: f64, keep: impl Fn(&Self, Item) -> bool) -> Vec<Item> {
+        let (Some((x0, y0)), Some((x1, y1))) = (cell_xy(p.offset(-r, -r)), cell_xy(p.offset(r, r)))
+        else {
+            return Vec::new();
+        };
+        let mut out = Vec::new();
+        for y in y0..=y1 {
+            for x in x0..=x1 {
+                for &it in &self.cells[y * GRID_NX + x] {
+                    let visible = match it {
+                        Item::Node(n) => self.node(n).visible,
+                        Item::Way(w) => self.way(w).visible,
+                    };
+                    if visible && keep(self, it) && self.item_p(it).dist(p) <= r {
+                        out.push(it);
+                    }
+                }
+            }
+        }
+        out
+    }
+}
+
+/// One changeset's edits being applied.
+pub(super) struct Session<'a> {
+    pub world: &'a mut World,
+    out: &'a mut DiffWriter,
+    users: &'a [User],
+    cs: i64,
+    user: u32,
+    ts: i64,
+    salt: u64,
+    /// Bounding box of everything edited.
+    pub bbox: Option<Bbox>,
+    /// Number of edits.
+    pub changes: u32,
+    /// Sum of edited positions (x, y km) for incident centres.
+    pub centre: (f64, f64, u32),
+    /// Whether edits mark elements as incident-made.
+    pub incident: bool,
+}
+
+impl<'a> Session<'a> {
+    /// A session writing edits stamped `ts` for changeset `cs` by `user`. `salt` varies which
+    /// deleted nodes omit their coordinates with the seed.
+    #[allow(clippy::too_many_arguments, reason = "one call site builds it")]
+    pub fn new(
+        world: &'a mut World,
+        out: &'a mut DiffWriter,
+        users: &'a [User],
+        cs: i64,
+        user: u32,
+        ts: i64,
+        salt: u64,
+        incident: bool,
+    ) -> Self {
+        Self {
+            world,
+            out,
+            users,
+            cs,
+            user,
+            ts,
+            salt,
+            bbox: None,
+            changes: 0,
+            centre: (0.0, 0.0, 0),
+            incident,
+        }
+    }
+
+    fn meta(&self, version: u32) -> Meta {
+        Meta {
+            version,
+            ts: self.ts,
+            cs: self.cs,
+            user: self.user,
+        }
+    }
+
+    fn user(&self) -> &'a User {
+        let users: &'a [User] = self.users;
+        &users[self.user as usize]
+    }
+
+    /// Whether an item may be edited by ordinary work now: visible, not already edited in this
+    /// changeset and not the product of an incident.
+    pub fn free(&self, it: Item) -> bool {
+        match it {
+            Item::Node(n) => {
+                let n = self.world.node(n);
+                n.visible && n.meta.cs != self.cs && !n.incident
+            }
+            Item::Way(w) => {
+                let w = self.world.way(w);
+                w.visible && w.meta.cs != self.cs && !w.incident
+            }
+        }
+    }
+
+    fn account_node(&mut self, i: u32) {
+        let n = self.world.node(i);
+        Bbox::extend(&mut self.bbox, n.lat, n.lon);
+        let p = P::from_e7(n.lat, n.lon);
+        self.centre.0 += p.x;
+        self.centre.1 += p.y;
+        self.centre.2 += 1;
+        self.changes += 1;
+    }
+
+    fn account_way(&mut self, i: u32) {
+        let w = self.world.way(i);
+        for &n in &w.nodes {
+            let n = self.world.node(n);
+            Bbox::extend(&mut self.bbox, n.lat, n.lon);
+        }
+        let p = self.world.way_p(i);
+        self.centre.0 += p.x;
+        self.centre.1 += p.y;
+        self.centre.2 += 1;
+        self.changes += 1;
+    }
+
+    fn write_node(&mut self, op: Op, i: u32, coords: bool) -> Result<(), DemoError> {
+        let user = self.user();
+        self.out
+            .node(op, World::node_id(i), self.world.node(i), user, coords)
+    }
+
+    fn write_way(&mut self, op: Op, i: u32) -> Result<(), DemoError> {
+        let user = self.user();
+        self.out.way(op, World::way_id(i), self.world.way(i), user)
+    }
+
+    /// Creates a node.
+    pub fn create_node(&mut self, p: P, tags: Tags, kind: Kind) -> Result<u32, DemoError> {
+        let meta = self.meta(1);
+        let i = self.world.add_node(p, tags, kind, meta);
+        self.world.nodes[i as usize].incident = self.incident;
+        self.account_node(i);
+        self.write_node(Op::Create, i, true)?;
+        Ok(i)
+    }
+
+    /// Creates a way over existing nodes (created before it in the same diff when new).
+    pub fn create_way(
+        &mut self,
+        nodes: Vec<u32>,
+        tags: Tags,
+        kind: Kind,
+    ) -> Result<u32, DemoError> {
+        let meta = self.meta(1);
+        let i = self.world.add_way(nodes, tags, kind, meta);
+        self.world.ways[i as usize].incident = self.incident;
+        self.account_way(i);
+        self.write_way(Op::Create, i)?;
+        Ok(i)
+    }
+
+    /// Creates a closed way (building, area) from new corner nodes.
+    pub fn create_area(&mut self, corners: &[P], tags: Tags, kind: Kind) -> Result<u32, DemoError> {
+        let mut nodes = Vec::with_capacity(corners.len() + 1);
+        for &c in corners {
+            nodes.push(self.create_node(c, Vec::new(), Kind::Vertex)?);
+        }
+        if let Some(&first) = nodes.first() {
+            nodes.push(first);
+        }
+        self.create_way(nodes, tags, kind)
+    }
+
+    /// Modifies a node's tags or position; the new version is written with full tags.
+    pub fn modify_node(&mut self, i: u32, f: impl FnOnce(&mut Node)) -> Result<(), DemoError> {
+        let meta = {
+            let n = &self.world.nodes[i as usize];
+            self.meta(n.meta.version + 1)
+        };
+        let n = &mut self.world.nodes[i as usize];
+        f(n);
+        n.meta = meta;
+        n.incident = self.incident;
+        self.account_node(i);
+        self.write_node(Op::Modify, i, true)
+    }
+
+    /// Modifies a way's tags; the new version is written with full tags and node list.
+    pub fn modify_way_tags(&mut self, i: u32, f: impl FnOnce(&mut Tags)) -> Result<(), DemoError> {
+        let meta = self.meta(self.world.way(i).meta.version + 1);
+        let w = &mut self.world.ways[i as usize];
+        f(&mut w.tags);
+        w.meta = meta;
+        w.incident = self.incident;
+        self.account_way(i);
+        self.write_way(Op::Modify, i)
+    }
+
+    /// Inserts an existing node into a way's node list after position `at`.
+    pub fn insert_way_node(&mut self, i: u32, at: usize, node: u32) -> Result<(), DemoError> {
+        let meta = self.meta(self.world.way(i).meta.version + 1);
+        let w = &mut self.world.ways[i as usize];
+        let at = (at + 1).min(w.nodes.len());
+        let new_ref = !w.nodes.contains(&node);
+        w.nodes.insert(at, node);
+        w.meta = meta;
+        if new_ref {
+            self.world.nodes[node as usize].refs += 1;
+        }
+        self.account_way(i);
+        self.write_way(Op::Modify, i)
+    }
+
+    /// Deletes a stand-alone node (or an orphaned vertex).
+    pub fn delete_node(&mut self, i: u32) -> Result<(), DemoError> {
+        let meta = self.meta(self.world.node(i).meta.version + 1);
+        // About 30% of deleted nodes are written without their last position, as real diffs
+        // sometimes are; the choice depends only on the id and the seed.
+        let coords = mix(self.salt ^ i as u64) % 100 >= 30;
+        let n = &mut self.world.nodes[i as usize];
+        n.meta = meta;
+        n.visible = false;
+        n.incident = self.incident;
+        self.account_node(i);
+        self.write_node(Op::Delete, i, coords)
+    }
+
+    /// Deletes a way, then every node it leaves unused that has no tags of its own.
+    /// Returns how many elements were deleted.
+    pub fn delete_way(&mut self, i: u32) -> Result<u32, DemoError> {
+        // The box of a way deletion still covers its nodes, so account before hiding it.
+        let meta = self.meta(self.world.way(i).meta.version + 1);
+        self.account_way(i);
+        let w = &mut self.world.ways[i as usize];
+        w.meta = meta;
+        w.visible = false;
+        w.incident = self.incident;
+        let mut nodes = w.nodes.clone();
+        self.write_way(Op::Delete, i)?;
+        nodes.sort_unstable();
+        nodes.dedup();
+        let mut deleted = 1;
+        for n in nodes {
+            let node = &mut self.world.nodes[n as usize];
+            node.refs = node.refs.saturating_sub(1);
+            if node.refs == 0 && node.tags.is_empty() && node.visible {
+                self.delete_node(n)?;
+                deleted += 1;
+            }
+        }
+        Ok(deleted)
+    }
+}
