@@ -59,7 +59,7 @@ impl Activity {
                 (A::Move, 12.0),
                 (A::Paths, 7.0),
                 (A::RoadDetail, 6.0),
-                (A::Cleanup, 7.0),
+                (A::Cleanup, 10.0),
             ],
             Area::Town | Area::Village(_) => &[
                 (A::Buildings, 34.0),
@@ -69,7 +69,7 @@ impl Activity {
                 (A::Move, 11.0),
                 (A::Paths, 9.0),
                 (A::RoadDetail, 8.0),
-                (A::Cleanup, 6.0),
+                (A::Cleanup, 9.0),
             ],
             Area::Harbour => &[
                 (A::Seamarks, 40.0),
@@ -100,7 +100,7 @@ impl Activity {
             Self::Move => lognormal_count(rng, 3.0, 0.8, 1, 12),
             Self::Landuse => lognormal_count(rng, 2.0, 0.6, 1, 5),
             Self::RoadDetail => lognormal_count(rng, 4.0, 0.8, 1, 15),
-            Self::Cleanup => rng.gen_range(1..=3),
+            Self::Cleanup => rng.gen_range(1..=2),
         };
         if newcomer {
             n.min(3)
@@ -188,7 +188,7 @@ impl Work<'_, '_> {
         match o.activity {
             Activity::Buildings => {
                 self.buildings(o.area, focus, n)?;
-                if self.rng.gen_bool(0.2) {
+                if self.rng.gen_bool(0.12) {
                     self.delete(focus, r, &[Kind::Building], 1)?;
                 }
                 if self.rng.gen_bool(0.3) {
@@ -198,7 +198,7 @@ impl Work<'_, '_> {
             }
             Activity::Pois => {
                 self.pois(o.area, focus, n)?;
-                if self.rng.gen_bool(0.2) {
+                if self.rng.gen_bool(0.3) {
                     self.delete(focus, r, &[Kind::Poi], 1)?;
                 }
             }
@@ -212,6 +212,9 @@ impl Work<'_, '_> {
                     Kind::Landuse,
                 ];
                 self.retag(focus, r.max(0.2), &kinds, n)?;
+                if self.rng.gen_bool(0.2) {
+                    self.delete(focus, r.max(0.2), &[Kind::Poi], 1)?;
+                }
             }
             Activity::Names => self.rename(focus, r.max(0.3), n)?,
             Activity::Move => self.nudge(focus, r.max(0.2), n)?,
@@ -225,9 +228,10 @@ impl Work<'_, '_> {
             Activity::RoadDetail => self.road_detail(focus, r.max(0.2), n)?,
             Activity::Cleanup => {
                 for _ in 0..n {
+                    // Mostly single points: ordinary deletions stay small and spread out.
                     let kinds: &[Kind] = match self.rng.gen_range(0..20) {
-                        0..=9 => &[Kind::Building],
-                        10..=16 => &[Kind::Poi],
+                        0..=10 => &[Kind::Poi],
+                        11..=17 => &[Kind::Building],
                         _ => &[Kind::Path],
                     };
                     self.delete(focus, r.max(0.2), kinds, 1)?;
@@ -299,14 +303,18 @@ impl Work<'_, '_> {
     /// Deletes up to `n` nearby objects (ways with their orphaned nodes); relation members
     /// and vertices are never candidates.
     fn delete(&mut self, focus: P, r: f64, kinds: &[Kind], n: usize) -> Result<(), DemoError> {
-        let mut c: Vec<Item> = self
-            .candidates(focus, r, kinds)
-            .into_iter()
-            .filter(|&it| match it {
-                Item::Way(w) => !self.s.world.way(w).in_rel,
-                Item::Node(_) => true,
-            })
-            .collect();
+        let deletable = |it: &Item| match *it {
+            Item::Way(w) => !self.s.world.way(w).in_rel,
+            Item::Node(_) => true,
+        };
+        let mut c: Vec<Item> = self.candidates(focus, r, kinds);
+        c.retain(deletable);
+        if c.is_empty() {
+            // Sparse places (villages, early weeks) look further, so the deletion rate does not
+            // grow as the map fills up.
+            c = self.candidates(focus, 0.6, kinds);
+            c.retain(deletable);
+        }
         for it in choose_n(self.rng, &mut c, n) {
             match it {
                 Item::Way(w) => {

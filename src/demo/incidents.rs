@@ -408,22 +408,27 @@ pub(super) fn run(
                     s.create_node(p, tags(&[("shop", "yes"), ("name", SURGE_TEXT)]), Kind::Poi)?;
                 }
             }
-            let pick = |s: &Session<'_>, rng: &mut ChaCha8Rng| -> Option<Item> {
+            // Deletions hit stand-alone points when there are any, so the surge stays a surge
+            // of new accounts and does not also look like a deletion burst.
+            let pick = |s: &Session<'_>, rng: &mut ChaCha8Rng, points_only: bool| {
                 let mut c = s.world.near(v.centre, 0.5, |w, it| match it {
                     Item::Node(x) => w.node(x).kind == Kind::Poi && w.node(x).refs == 0,
                     Item::Way(x) => w.way(x).kind == Kind::Building && !w.way(x).in_rel,
                 });
                 c.retain(|&it| s.free(it));
+                if points_only && c.iter().any(|it| matches!(it, Item::Node(_))) {
+                    c.retain(|it| matches!(it, Item::Node(_)));
+                }
                 choose_n(rng, &mut c, 1).first().copied()
             };
-            match pick(s, rng) {
+            match pick(s, rng, true) {
                 Some(Item::Way(w)) => {
                     s.delete_way(w)?;
                 }
                 Some(Item::Node(x)) => s.delete_node(x)?,
                 None => {}
             }
-            match pick(s, rng) {
+            match pick(s, rng, false) {
                 Some(Item::Way(w)) => s.modify_way_tags(w, |t| set_tag(t, "name", SURGE_TEXT))?,
                 Some(Item::Node(x)) => {
                     s.modify_node(x, |n| set_tag(&mut n.tags, "name", SURGE_TEXT))?
