@@ -7,6 +7,13 @@
 //! Gamma(α + s, β + n) and next week's count is negative binomial with `r = α + s` and
 //! `p = (β + n) / (β + n + 1)`. A quiet cell's expectation stays near its neighbourhood's; a
 //! busy cell's follows its own history.
+//!
+//! Real weekly counts vary more than a constant-rate Poisson allows (a cleanup week, a mapping
+//! party). That week-to-week spread is a second Gamma factor with shape `k`, fitted on the
+//! neighbourhood's own weekly histories ([`fit_dispersion`]). The predictive count then has mean
+//! `μ = a / b` and variance `μ + μ² (1/a + 1/k + 1/(a k))`, and is reported as the negative
+//! binomial with the same mean and variance (`r = 1 / (1/a + 1/k + 1/(a k))`). Without extra
+//! spread (`k = ∞`) this is exactly the Gamma-Poisson predictive above.
 
 use statrs::function::beta::checked_beta_reg;
 
@@ -78,14 +85,20 @@ pub struct Predictive {
 }
 
 impl Predictive {
-    /// Combines a prior with a cell's own weekly history.
+    /// Combines a prior with a cell's own weekly history and the week-to-week dispersion shape
+    /// `k` (`f64::INFINITY` for none).
     #[must_use]
-    pub fn from_history(prior: Prior, history: &[u64]) -> Self {
+    pub fn from_history(prior: Prior, history: &[u64], k: f64) -> Self {
         #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
         let (s, n) = (history.iter().sum::<u64>() as f64, history.len() as f64);
         let a = prior.alpha + s;
         let b = prior.beta + n;
-        Self { r: a, p: b / (b + 1.0) }
+        let mean = a / b;
+        let r = 1.0 / (1.0 / a + 1.0 / k + 1.0 / (a * k));
+        Self {
+            r,
+            p: r / (r + mean),
+        }
     }
 
     /// Expected count.
@@ -98,6 +111,40 @@ impl Predictive {
     #[must_use]
     pub fn tail(&self, k: u64) -> f64 {
         nb_tail(k, self.r, self.p)
+    }
+}
+
+/// Smallest dispersion shape accepted: below it one odd week would swamp every test.
+pub const MIN_DISPERSION: f64 = 0.5;
+
+/// Fits the week-to-week dispersion shape `k` by pooled method of moments over cells' weekly
+/// histories: for a cell with mean `m` and sample variance `v`, a negative binomial has
+/// `v = m + m² / k`, so `k = Σ m² / Σ (v − m)⁺`. Returns `f64::INFINITY` when no cell shows
+/// more spread than Poisson.
+#[must_use]
+pub fn fit_dispersion<'a>(histories: impl IntoIterator<Item = &'a [u64]>) -> f64 {
+    let (mut num, mut den) = (0.0, 0.0);
+    for h in histories {
+        if h.len() < 2 {
+            continue;
+        }
+        #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+        let (n, m) = {
+            let n = h.len() as f64;
+            (n, h.iter().map(|&x| x as f64).sum::<f64>() / n)
+        };
+        if m <= 0.0 {
+            continue;
+        }
+        #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+        let v = h.iter().map(|&x| (x as f64 - m).powi(2)).sum::<f64>() / (n - 1.0);
+        num += m * m;
+        den += (v - m).max(0.0);
+    }
+    if den <= 0.0 {
+        f64::INFINITY
+    } else {
+        (num / den).max(MIN_DISPERSION)
     }
 }
 
@@ -142,8 +189,8 @@ mod tests {
         // Source: Benjamini & Hochberg (1995), J. R. Statist. Soc. B 57(1), section 4: the 15
         // p-values below give 4 rejections at q = 0.05 (SciPy's false_discovery_control agrees).
         let p = [
-            0.0001, 0.0004, 0.0019, 0.0095, 0.0201, 0.0278, 0.0298, 0.0344, 0.0459, 0.3240,
-            0.4262, 0.5719, 0.6528, 0.7590, 1.000,
+            0.0001, 0.0004, 0.0019, 0.0095, 0.0201, 0.0278, 0.0298, 0.0344, 0.0459, 0.3240, 0.4262,
+            0.5719, 0.6528, 0.7590, 1.000,
         ];
         let q = benjamini_hochberg(&p);
         assert_eq!(q.iter().filter(|&&q| q <= 0.05).count(), 4);
@@ -162,11 +209,34 @@ mod tests {
     }
 
     #[test]
+    fn dispersion_by_moments() {
+        // Poisson-like histories (variance = mean) show no extra spread.
+        assert!(
+            fit_dispersion([&[2u64, 4, 3, 3][..]]).is_infinite()
+                || fit_dispersion([&[2u64, 4, 3, 3][..]]) > 100.0
+        );
+        // Mean 5, sample variance 30: k = 25 / 25 = 1.
+        let k = fit_dispersion([&[0u64, 0, 0, 10, 10, 10][..]]);
+        assert!((k - 1.0).abs() < 1e-12, "{k}");
+    }
+
+    #[test]
     fn predictive_mean_is_posterior_mean() {
-        let pr = Prior { alpha: 2.0, beta: 1.0 };
-        let d = Predictive::from_history(pr, &[3, 5, 4]);
-        // Posterior Gamma(2 + 12, 1 + 3): mean 3.5.
+        let pr = Prior {
+            alpha: 2.0,
+            beta: 1.0,
+        };
+        let d = Predictive::from_history(pr, &[3, 5, 4], f64::INFINITY);
+        // Posterior Gamma(2 + 12, 1 + 3): mean 3.5, and r = a = 14 without extra spread.
         assert!((d.mean() - 3.5).abs() < 1e-12);
+        assert!((d.r - 14.0).abs() < 1e-12);
+        // With week-to-week spread the mean stays and the variance grows to
+        // mu + mu^2 (1/a + 1/k + 1/(a k)).
+        let w = Predictive::from_history(pr, &[3, 5, 4], 2.0);
+        assert!((w.mean() - 3.5).abs() < 1e-12);
+        let var = w.r * (1.0 - w.p) / (w.p * w.p);
+        let want = 3.5 + 3.5 * 3.5 * (1.0 / 14.0 + 0.5 + 1.0 / 28.0);
+        assert!((var - want).abs() < 1e-9, "{var} vs {want}");
         assert!((d.tail(0) - 1.0).abs() < f64::EPSILON);
         assert!(d.tail(10) < d.tail(5));
     }

@@ -13,7 +13,7 @@ use crate::model::Op;
 /// The outlier kinds and the count each one tests.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
 pub enum Kind {
-    /// Deletions.
+    /// Deleted objects (ways, relations, tagged nodes; a building's vertices do not count again).
     DeletionBurst,
     /// Distinct newcomer accounts editing the cell.
     NewcomerSurge,
@@ -51,7 +51,7 @@ impl Kind {
     #[must_use]
     pub const fn measure(self) -> &'static str {
         match self {
-            Self::DeletionBurst => "deletions",
+            Self::DeletionBurst => "deleted objects",
             Self::NewcomerSurge => "newcomer accounts editing",
             Self::OffshoreFabrication => "non-maritime objects created in water",
             Self::RenameSpam => "names changed to advert-like text",
@@ -71,6 +71,8 @@ pub struct CellWeek {
     pub creates: u64,
     pub modifies: u64,
     pub deletes: u64,
+    /// Deleted objects in their own right (see `EditFacts::deleted_feature`).
+    pub deleted_features: u64,
     pub newcomer_edits: u64,
     pub offshore_creates: u64,
     pub spam_renames: u64,
@@ -86,7 +88,7 @@ impl CellWeek {
     #[must_use]
     pub fn value(&self, k: Kind) -> u64 {
         match k {
-            Kind::DeletionBurst => self.deletes,
+            Kind::DeletionBurst => self.deleted_features,
             Kind::NewcomerSurge => self.newcomers.len() as u64,
             Kind::OffshoreFabrication => self.offshore_creates,
             Kind::RenameSpam => self.spam_renames,
@@ -119,7 +121,9 @@ impl CellWeeks {
 /// The H3 cell of a position.
 #[must_use]
 pub fn cell_of(pos: crate::model::Coord, res: Resolution) -> Option<CellIndex> {
-    LatLng::new(pos.lat(), pos.lon()).ok().map(|ll| ll.to_cell(res))
+    LatLng::new(pos.lat(), pos.lon())
+        .ok()
+        .map(|ll| ll.to_cell(res))
 }
 
 /// Aggregates placed edits. `week_of[i]` is edit `i`'s week index in the window (`None`
@@ -142,7 +146,9 @@ pub fn aggregate(
         let Some(cell) = cell_of(pos, res) else {
             continue;
         };
-        let cw = &mut cells.entry(cell).or_insert_with(|| vec![CellWeek::default(); weeks])[w];
+        let cw = &mut cells
+            .entry(cell)
+            .or_insert_with(|| vec![CellWeek::default(); weeks])[w];
         cw.edits += 1;
         match e.op {
             Op::Create => cw.creates += 1,
@@ -152,7 +158,8 @@ pub fn aggregate(
         let is_flagged = flagged(e.changeset);
         cw.newcomer_edits += u64::from(f.newcomer);
         cw.offshore_creates += u64::from(f.offshore_create);
-        cw.spam_renames += u64::from(f.spam_name);
+        cw.deleted_features += u64::from(f.deleted_feature);
+        cw.spam_renames += u64::from(f.spam_rename);
         cw.flagged_edits += u64::from(is_flagged);
         cw.mappers.push(e.uid);
         if f.newcomer {
@@ -168,10 +175,10 @@ pub fn aggregate(
                         .or_default() += 1;
                 }
             };
-            add(Kind::DeletionBurst, e.op == Op::Delete);
+            add(Kind::DeletionBurst, f.deleted_feature);
             add(Kind::NewcomerSurge, f.newcomer);
             add(Kind::OffshoreFabrication, f.offshore_create);
-            add(Kind::RenameSpam, f.spam_name);
+            add(Kind::RenameSpam, f.spam_rename);
             add(Kind::ScoreHotspot, is_flagged);
         }
     }

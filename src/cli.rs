@@ -26,7 +26,11 @@ pub mod exit {
 }
 
 #[derive(Debug, Parser)]
-#[command(name = "hexvigil", version, about = "Weekly vandalism watch for a region's OpenStreetMap data: scores changesets, compares H3 cells with their own history, writes heat images and an HTML report.")]
+#[command(
+    name = "hexvigil",
+    version,
+    about = "Weekly vandalism watch for a region's OpenStreetMap data: scores changesets, compares H3 cells with their own history, writes heat images and an HTML report."
+)]
 pub struct Cli {
     /// No progress bars or notes.
     #[arg(long, short, global = true)]
@@ -123,9 +127,10 @@ impl ReportArgs {
             baseline_weeks: self.baseline_weeks,
             flag_threshold: self.flag_threshold,
             colormap: self.colormap,
-            generated_at: self.generated_at.clone().unwrap_or_else(|| {
-                chrono::Utc::now().format("%Y-%m-%d %H:%M UTC").to_string()
-            }),
+            generated_at: self
+                .generated_at
+                .clone()
+                .unwrap_or_else(|| chrono::Utc::now().format("%Y-%m-%d %H:%M UTC").to_string()),
             ..ReportOptions::default()
         };
         o.detect.fdr = self.fdr;
@@ -200,10 +205,17 @@ fn report(db: &Path, out: &Path, opts: &ReportOptions, progress: &Progress) -> R
     for r in &analysis.summary.regions {
         progress.note(&format!(
             "{}: {} edits, {} changesets, {} flagged, {} outlier cells",
-            r.name, r.counts.edits, r.counts.changesets, r.counts.flagged_changesets, r.counts.outlier_cells
+            r.name,
+            r.counts.edits,
+            r.counts.changesets,
+            r.counts.flagged_changesets,
+            r.counts.outlier_cells
         ));
     }
-    progress.note(&format!("report written to {}", out.join("index.html").display()));
+    progress.note(&format!(
+        "report written to {}",
+        out.join("index.html").display()
+    ));
     Ok(())
 }
 

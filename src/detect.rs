@@ -4,7 +4,7 @@
 
 use h3o::CellIndex;
 
-use crate::baseline::{benjamini_hochberg, fit_prior, Predictive, PriorBounds};
+use crate::baseline::{benjamini_hochberg, fit_dispersion, fit_prior, Predictive, PriorBounds};
 use crate::cells::{CellWeeks, Kind};
 
 /// Detection settings.
@@ -59,7 +59,12 @@ pub struct Test {
 /// `offshore` is false (no land layer). Score hotspots are dropped where another kind already
 /// flags the cell, since they would repeat the same evidence.
 #[must_use]
-pub fn detect(cw: &CellWeeks, cells_in_region: &[CellIndex], offshore: bool, cfg: &DetectConfig) -> Vec<Test> {
+pub fn detect(
+    cw: &CellWeeks,
+    cells_in_region: &[CellIndex],
+    offshore: bool,
+    cfg: &DetectConfig,
+) -> Vec<Test> {
     let report = cw.weeks - 1;
     let mut all = Vec::new();
     for kind in Kind::ALL {
@@ -75,12 +80,20 @@ pub fn detect(cw: &CellWeeks, cells_in_region: &[CellIndex], offshore: bool, cfg
                     .collect();
                 let own_history = own.is_some_and(|v| v[..report].iter().any(|x| x.edits > 0));
                 let mut samples = Vec::new();
+                let mut active: Vec<Vec<u64>> = Vec::new();
                 for n in cell.grid_disk::<Vec<_>>(cfg.neighbourhood_k) {
                     let nv = cw.get(n);
-                    samples.extend((0..report).map(|w| nv.map_or(0, |v| v[w].value(kind))));
+                    let h: Vec<u64> = (0..report)
+                        .map(|w| nv.map_or(0, |v| v[w].value(kind)))
+                        .collect();
+                    samples.extend_from_slice(&h);
+                    if nv.is_some() {
+                        active.push(h);
+                    }
                 }
                 let prior = fit_prior(&samples, &cfg.prior);
-                let pred = Predictive::from_history(prior, &history);
+                let k = fit_dispersion(active.iter().map(Vec::as_slice));
+                let pred = Predictive::from_history(prior, &history, k);
                 let observed = own.map_or(0, |v| v[report].value(kind));
                 Test {
                     kind,

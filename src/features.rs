@@ -122,6 +122,11 @@ pub struct EditFacts {
     pub name_changed: bool,
     /// The new name looks like an advert, and differs from the old one.
     pub spam_name: bool,
+    /// An existing object renamed to advert-like text (a modification, not a creation).
+    pub spam_rename: bool,
+    /// A deleted object in its own right: a way, a relation or a tagged node (not the untagged
+    /// vertices that go with a deleted way). Nodes whose earlier tags are unknown count.
+    pub deleted_feature: bool,
     /// A non-maritime tagged object created in water far from land.
     pub offshore_create: bool,
     /// Distance from land of an offshore creation, metres.
@@ -169,7 +174,9 @@ impl MapperHistory {
     /// Number of the mapper's changesets started before `t`.
     #[must_use]
     pub fn prior(&self, uid: i64, t: i64) -> usize {
-        self.created.get(&uid).map_or(0, |v| v.partition_point(|&c| c < t))
+        self.created
+            .get(&uid)
+            .map_or(0, |v| v.partition_point(|&c| c < t))
     }
 
     /// Distinct ISO weeks with a changeset before `t`.
@@ -191,8 +198,13 @@ impl MapperHistory {
 /// Account age in days at time `t` (0 when the first changeset seen is this one or later).
 #[must_use]
 pub fn account_age_days(hist: &MapperHistory, uid: i64, first_edit: i64, t: i64) -> f64 {
-    let first = hist.first_seen(uid).map_or(first_edit, |f| f.min(first_edit));
-    #[allow(clippy::cast_precision_loss, reason = "seconds fit f64 exactly for any real date")]
+    let first = hist
+        .first_seen(uid)
+        .map_or(first_edit, |f| f.min(first_edit));
+    #[allow(
+        clippy::cast_precision_loss,
+        reason = "seconds fit f64 exactly for any real date"
+    )]
     let days = (t - first).max(0) as f64 / 86_400.0;
     days
 }
@@ -222,6 +234,7 @@ pub fn edit_facts(
                     f.name_changed = n != o;
                 }
                 f.spam_name = new_name.is_some_and(|n| is_spam_like(n) && old_name != Some(n));
+                f.spam_rename = f.spam_name && e.op == Op::Modify;
             }
             if e.op == Op::Modify {
                 if let Some(prev) = &e.prev_tags {
@@ -229,6 +242,8 @@ pub fn edit_facts(
                 }
             }
             if e.op == Op::Delete {
+                f.deleted_feature = e.etype != ElementType::Node
+                    || e.prev_tags.as_deref().is_none_or(|t| !t.is_empty());
                 f.deleted_mature = e.prev_version.unwrap_or(e.version - 1) >= 5;
             }
             let tagged = !e.tags.is_empty();
@@ -314,7 +329,11 @@ pub fn changeset_features(
             Op::Modify => c.modifies += 1,
             Op::Delete => c.deletes += 1,
         }
-        #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss, reason = "codes are 0..=2")]
+        #[allow(
+            clippy::cast_possible_truncation,
+            clippy::cast_sign_loss,
+            reason = "codes are 0..=2"
+        )]
         {
             c.by_type[e.op.code() as usize][e.etype.code() as usize] += 1;
         }
@@ -381,7 +400,14 @@ mod tests {
         ] {
             assert!(is_spam_like(s), "{s}");
         }
-        for s in ["Harbour Bakery", "St. Mary's", "Route 66", "Unit 12-14", "Café No. 5", "A.B. Smith"] {
+        for s in [
+            "Harbour Bakery",
+            "St. Mary's",
+            "Route 66",
+            "Unit 12-14",
+            "Café No. 5",
+            "A.B. Smith",
+        ] {
             assert!(!is_spam_like(s), "{s}");
         }
     }
@@ -390,7 +416,9 @@ mod tests {
     fn maritime_tags() {
         let t = |kv: &[(&str, &str)]| {
             crate::store::pack_tags(
-                &kv.iter().map(|(k, v)| ((*k).to_owned(), (*v).to_owned())).collect::<Vec<_>>(),
+                &kv.iter()
+                    .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
+                    .collect::<Vec<_>>(),
             )
         };
         assert!(is_maritime(&t(&[("seamark:type", "buoy_lateral")])));

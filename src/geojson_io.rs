@@ -11,12 +11,17 @@ fn ring(positions: &[Vec<f64>]) -> Result<LineString<f64>, String> {
             _ => return Err("a position has fewer than two numbers".to_owned()),
         };
         if !x.is_finite() || !y.is_finite() || x.abs() > 180.0 || y.abs() > 90.0 {
-            return Err(format!("position [{x}, {y}] is not a valid longitude/latitude"));
+            return Err(format!(
+                "position [{x}, {y}] is not a valid longitude/latitude"
+            ));
         }
         coords.push(GeoCoord { x, y });
     }
     if coords.len() < 4 {
-        return Err(format!("a ring has {} positions; at least 4 are needed", coords.len()));
+        return Err(format!(
+            "a ring has {} positions; at least 4 are needed",
+            coords.len()
+        ));
     }
     Ok(LineString::new(coords))
 }
@@ -53,7 +58,9 @@ fn geometry(g: &Geometry) -> Result<Option<MultiPolygon<f64>>, String> {
 /// # Errors
 /// A message when the text is not GeoJSON or a polygon is malformed (the message names the
 /// feature's position in the collection).
-pub fn polygons_from_geojson(text: &str) -> Result<Vec<(Option<String>, MultiPolygon<f64>)>, String> {
+pub fn polygons_from_geojson(
+    text: &str,
+) -> Result<Vec<(Option<String>, MultiPolygon<f64>)>, String> {
     let gj: GeoJson = text.parse().map_err(|e| format!("invalid GeoJSON: {e}"))?;
     let mut out = Vec::new();
     match gj {
@@ -71,7 +78,10 @@ pub fn polygons_from_geojson(text: &str) -> Result<Vec<(Option<String>, MultiPol
             }
         }
         GeoJson::Feature(f) => {
-            let name = f.property("name").and_then(|v| v.as_str()).map(str::to_owned);
+            let name = f
+                .property("name")
+                .and_then(|v| v.as_str())
+                .map(str::to_owned);
             if let Some(g) = &f.geometry {
                 if let Some(mp) = geometry(g)? {
                     out.push((name, mp));

@@ -4,7 +4,10 @@
 
 use std::path::{Path, PathBuf};
 
-use geo::{BoundingRect, Closest, ClosestPoint, Contains, Distance, Haversine, MultiPolygon, Point, Polygon};
+use geo::{
+    BoundingRect, Closest, ClosestPoint, Contains, Distance, Haversine, MultiPolygon, Point,
+    Polygon,
+};
 use rstar::{RTree, RTreeObject, AABB};
 
 use crate::model::Coord;
@@ -133,15 +136,16 @@ impl Land {
         let p = Point::new(c.lon(), c.lat());
         let nearest = |poly: &Polygon<f64>| -> f64 {
             match poly.closest_point(&p) {
-                Closest::Intersection(q) | Closest::SinglePoint(q) => {
-                    Haversine.distance(p, q)
-                }
+                Closest::Intersection(q) | Closest::SinglePoint(q) => Haversine.distance(p, q),
                 Closest::Indeterminate => f64::INFINITY,
             }
         };
         // Boxes near the point first: a degree of latitude is ~111 km, so 0.5 degree covers any
         // offshore distance the detectors care about; fall back to a full scan beyond that.
-        let near = AABB::from_corners([c.lon() - 0.5, c.lat() - 0.5], [c.lon() + 0.5, c.lat() + 0.5]);
+        let near = AABB::from_corners(
+            [c.lon() - 0.5, c.lat() - 0.5],
+            [c.lon() + 0.5, c.lat() + 0.5],
+        );
         let best = self
             .tree
             .locate_in_envelope_intersecting(near)
@@ -150,6 +154,11 @@ impl Land {
         if best.is_finite() {
             return Some(best);
         }
-        Some(self.polygons.iter().map(nearest).fold(f64::INFINITY, f64::min))
+        Some(
+            self.polygons
+                .iter()
+                .map(nearest)
+                .fold(f64::INFINITY, f64::min),
+        )
     }
 }

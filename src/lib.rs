@@ -5,13 +5,22 @@
 //! One module per pipeline stage; see ARCHITECTURE.md for the data flow.
 #![deny(clippy::unwrap_used, clippy::expect_used)]
 
-pub mod geojson_io;
-pub mod land;
-pub mod model;
-pub mod render;
-pub mod summary;
-pub mod ingest;
-pub mod progress;
-pub mod store;
-pub mod report;
+pub mod baseline;
+pub mod cells;
+pub mod cli;
 pub mod demo;
+pub mod detect;
+pub mod features;
+pub mod geojson_io;
+pub mod ingest;
+pub mod land;
+pub mod locate;
+pub mod model;
+pub mod pipeline;
+pub mod progress;
+pub mod regions;
+pub mod render;
+pub mod report;
+pub mod score;
+pub mod store;
+pub mod summary;

@@ -78,7 +78,9 @@ impl NodeIndex<'_> {
             .prepare_cached("SELECT lat_e7, lon_e7 FROM elements WHERE etype = 0 AND eid = ?1")
             .map_err(|e| self.store.map_err(e))?;
         let c = st
-            .query_row([id], |r| Ok((r.get::<_, Option<i64>>(0)?, r.get::<_, Option<i64>>(1)?)))
+            .query_row([id], |r| {
+                Ok((r.get::<_, Option<i64>>(0)?, r.get::<_, Option<i64>>(1)?))
+            })
             .optional()
             .map_err(|e| self.store.map_err(e))?
             .and_then(|(a, b)| Coord::from_e7(a?, b?));
@@ -147,7 +149,9 @@ impl Centroid {
         self.n += 1;
     }
     fn get(&self) -> Option<Coord> {
-        (self.n > 0).then(|| Coord::from_e7(self.lat / self.n, self.lon / self.n)).flatten()
+        (self.n > 0)
+            .then(|| Coord::from_e7(self.lat / self.n, self.lon / self.n))
+            .flatten()
     }
 }
 
@@ -155,7 +159,10 @@ impl Centroid {
 ///
 /// # Errors
 /// On database failure.
-pub fn load_changesets(store: &Store, ids: impl IntoIterator<Item = i64>) -> Result<HashMap<i64, ChangesetMeta>, StoreError> {
+pub fn load_changesets(
+    store: &Store,
+    ids: impl IntoIterator<Item = i64>,
+) -> Result<HashMap<i64, ChangesetMeta>, StoreError> {
     let mut st = store
         .conn()
         .prepare_cached(
@@ -203,7 +210,11 @@ pub fn load_changesets(store: &Store, ids: impl IntoIterator<Item = i64>) -> Res
 ///
 /// # Errors
 /// On database failure.
-pub fn load_edits(store: &Store, from: i64, to: i64) -> Result<(Vec<Edit>, HashMap<i64, ChangesetMeta>), StoreError> {
+pub fn load_edits(
+    store: &Store,
+    from: i64,
+    to: i64,
+) -> Result<(Vec<Edit>, HashMap<i64, ChangesetMeta>), StoreError> {
     let mut st = store
         .conn()
         .prepare(
@@ -233,7 +244,11 @@ pub fn load_edits(store: &Store, from: i64, to: i64) -> Result<(Vec<Edit>, HashM
                     user: r.get(6)?,
                     ts: r.get(7)?,
                     pos,
-                    placed_by: if pos.is_some() { PlacedBy::Own } else { PlacedBy::Unplaced },
+                    placed_by: if pos.is_some() {
+                        PlacedBy::Own
+                    } else {
+                        PlacedBy::Unplaced
+                    },
                     tags: r.get(10)?,
                     prev_tags: r.get(14)?,
                     prev_version: r.get(12)?,

@@ -284,9 +284,13 @@ mod tests {
     fn iso_week_edges() {
         // Source: ISO 8601 calendar; 2026-01-01 is a Thursday so it lies in 2026-W01,
         // and 2027-01-01 (a Friday) still lies in 2026-W53 (from memory, checked with chrono).
-        let t = DateTime::parse_from_rfc3339("2026-01-01T12:00:00Z").unwrap().to_utc();
+        let t = DateTime::parse_from_rfc3339("2026-01-01T12:00:00Z")
+            .unwrap()
+            .to_utc();
         assert_eq!(IsoWeek::of(t).to_string(), "2026-W01");
-        let t = DateTime::parse_from_rfc3339("2027-01-01T00:00:00Z").unwrap().to_utc();
+        let t = DateTime::parse_from_rfc3339("2027-01-01T00:00:00Z")
+            .unwrap()
+            .to_utc();
         assert_eq!(IsoWeek::of(t).to_string(), "2026-W53");
         let w = IsoWeek::parse("2026-W47").unwrap();
         assert_eq!(w.start().to_rfc3339(), "2026-11-16T00:00:00+00:00");

@@ -112,7 +112,11 @@ fn default_week(store: &Store) -> Result<IsoWeek, PipelineError> {
     };
     let last = last.ok_or_else(no_data)?;
     let w = IsoWeek::of_unix(last).ok_or_else(no_data)?;
-    Ok(if last >= w.start_unix() + 6 * 86_400 { w } else { w.offset(-1) })
+    Ok(if last >= w.start_unix() + 6 * 86_400 {
+        w
+    } else {
+        w.offset(-1)
+    })
 }
 
 /// Resolution by the size of the area edited: 8 (about 0.7 km² cells) for a town, down to 5
@@ -141,8 +145,15 @@ fn bbox_of(points: impl Iterator<Item = (f64, f64)>) -> Option<geo::Rect<f64>> {
 ///
 /// # Errors
 /// On database failure, unreadable land or regions files, or when there is no data.
-#[allow(clippy::too_many_lines, reason = "one linear pipeline, easier to read whole")]
-pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Result<Analysis, PipelineError> {
+#[allow(
+    clippy::too_many_lines,
+    reason = "one linear pipeline, easier to read whole"
+)]
+pub fn analyse(
+    store: &Store,
+    opts: &ReportOptions,
+    progress: &Progress,
+) -> Result<Analysis, PipelineError> {
     let week = match opts.week {
         Some(w) => w,
         None => default_week(store)?,
@@ -152,7 +163,10 @@ pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Resu
     let weeks = n_hist as usize + 1;
     let from = first_week.start_unix();
     let to = week.offset(1).start_unix();
-    progress.note(&format!("report week {week}, baseline {first_week} to {}", week.offset(-1)));
+    progress.note(&format!(
+        "report week {week}, baseline {first_week} to {}",
+        week.offset(-1)
+    ));
 
     let land = match &opts.land {
         Some(p) => Land::from_geojson_file(p)?,
@@ -172,7 +186,10 @@ pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Resu
     }
     let mut first_edit: HashMap<i64, i64> = HashMap::new();
     for e in &edits {
-        first_edit.entry(e.uid).and_modify(|t| *t = (*t).min(e.ts)).or_insert(e.ts);
+        first_edit
+            .entry(e.uid)
+            .and_modify(|t| *t = (*t).min(e.ts))
+            .or_insert(e.ts);
     }
     let mut uids: Vec<i64> = first_edit.keys().copied().collect();
     uids.sort_unstable();
@@ -227,7 +244,8 @@ pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Resu
         })
         .collect();
 
-    let slugs = crate::report::assign_slugs(&regions.iter().map(|r| r.name.as_str()).collect::<Vec<_>>());
+    let slugs =
+        crate::report::assign_slugs(&regions.iter().map(|r| r.name.as_str()).collect::<Vec<_>>());
     let bar = progress.steps(regions.len() as u64, "analyse");
     let mut out_regions = Vec::new();
     for (ri, region) in regions.iter().enumerate() {
@@ -255,7 +273,8 @@ pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Resu
         let mut cs_rows: BTreeMap<i64, (u64, u64, u64)> = BTreeMap::new();
         for (i, e) in edits.iter().enumerate() {
             let Some(w) = week_of[i] else { continue };
-            let in_region = edit_region[i] == Some(ri) || (e.pos.is_none() && ri == 0 && w == report_idx);
+            let in_region =
+                edit_region[i] == Some(ri) || (e.pos.is_none() && ri == 0 && w == report_idx);
             if !in_region {
                 continue;
             }
@@ -295,10 +314,26 @@ pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Resu
             let n = report_idx.max(1) as f64;
             BaselineCounts {
                 weeks: n_hist,
-                edits: trend[..report_idx].iter().map(|t| t.edits as f64).sum::<f64>() / n,
-                deletes: trend[..report_idx].iter().map(|t| t.deletes as f64).sum::<f64>() / n,
-                newcomers: week_sets[..report_idx].iter().map(|s| s.1.len() as f64).sum::<f64>() / n,
-                changesets: week_sets[..report_idx].iter().map(|s| s.0.len() as f64).sum::<f64>() / n,
+                edits: trend[..report_idx]
+                    .iter()
+                    .map(|t| t.edits as f64)
+                    .sum::<f64>()
+                    / n,
+                deletes: trend[..report_idx]
+                    .iter()
+                    .map(|t| t.deletes as f64)
+                    .sum::<f64>()
+                    / n,
+                newcomers: week_sets[..report_idx]
+                    .iter()
+                    .map(|s| s.1.len() as f64)
+                    .sum::<f64>()
+                    / n,
+                changesets: week_sets[..report_idx]
+                    .iter()
+                    .map(|s| s.0.len() as f64)
+                    .sum::<f64>()
+                    / n,
             }
         };
 
@@ -376,11 +411,21 @@ pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Resu
                 p_value: t.p_value,
                 q_value: t.q_value,
                 measure: t.kind.measure().to_owned(),
-                baseline_source: if t.own_history { "own" } else { "neighbourhood" }.to_owned(),
+                baseline_source: if t.own_history {
+                    "own"
+                } else {
+                    "neighbourhood"
+                }
+                .to_owned(),
                 changesets: contrib.iter().map(|c| c.0).collect(),
                 mappers: names,
             });
-            let mut ring: Vec<(f64, f64)> = t.cell.boundary().iter().map(|ll| (ll.lng(), ll.lat())).collect();
+            let mut ring: Vec<(f64, f64)> = t
+                .cell
+                .boundary()
+                .iter()
+                .map(|ll| (ll.lng(), ll.lat()))
+                .collect();
             if let Some(&first) = ring.first() {
                 ring.push(first);
             }
@@ -392,7 +437,14 @@ pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Resu
             .area
             .as_ref()
             .and_then(geo::BoundingRect::bounding_rect)
-            .or_else(|| bbox_of(cells.iter().map(|&c| LatLng::from(c)).map(|ll| (ll.lng(), ll.lat()))))
+            .or_else(|| {
+                bbox_of(
+                    cells
+                        .iter()
+                        .map(|&c| LatLng::from(c))
+                        .map(|ll| (ll.lng(), ll.lat())),
+                )
+            })
             .unwrap_or_else(|| geo::Rect::new((-1.0, -1.0), (1.0, 1.0)));
         out_regions.push(RegionAnalysis {
             report: RegionReport {
@@ -424,7 +476,10 @@ pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Resu
         week: week.to_string(),
         resolution: u8::from(res),
         baseline_weeks: n_hist,
-        regions: out_regions.iter().map(|r| r.report.summary.clone()).collect(),
+        regions: out_regions
+            .iter()
+            .map(|r| r.report.summary.clone())
+            .collect(),
     };
     Ok(Analysis {
         summary,
@@ -438,7 +493,11 @@ pub fn analyse(store: &Store, opts: &ReportOptions, progress: &Progress) -> Resu
 ///
 /// # Errors
 /// When an image or a file cannot be written.
-pub fn write(analysis: &mut Analysis, out: &Path, opts: &ReportOptions) -> Result<(), PipelineError> {
+pub fn write(
+    analysis: &mut Analysis,
+    out: &Path,
+    opts: &ReportOptions,
+) -> Result<(), PipelineError> {
     let report_idx = analysis.cell_weeks.weeks - 1;
     for r in &mut analysis.regions {
         let dir = out.join(&r.report.summary.slug);
@@ -457,7 +516,12 @@ pub fn write(analysis: &mut Analysis, out: &Path, opts: &ReportOptions) -> Resul
         let week = &r.report.summary.week;
         let images = [
             ("heat.png", "edits", "edits per cell in the week", None),
-            ("heat-deletions.png", "deletions", "deletions per cell in the week", Some(Kind::DeletionBurst)),
+            (
+                "heat-deletions.png",
+                "deletions",
+                "deletions per cell in the week",
+                Some(Kind::DeletionBurst),
+            ),
         ];
         r.report.images.clear();
         for (file, what, legend, kind) in images {
@@ -471,7 +535,13 @@ pub fn write(analysis: &mut Analysis, out: &Path, opts: &ReportOptions) -> Resul
                     Some(HeatCell { cell: c, value })
                 })
                 .collect();
-            let total: f64 = cells.iter().map(|c| c.value).sum();
+            #[allow(
+                clippy::cast_possible_truncation,
+                clippy::cast_sign_loss,
+                reason = "sums of counts"
+            )]
+            let total =
+                crate::report::group_thousands(cells.iter().map(|c| c.value).sum::<f64>() as u64);
             let title = format!("{name}: {what}, {week}");
             let subtitle = format!(
                 "H3 resolution {} · {} {what} · outlier cells outlined",
@@ -487,6 +557,7 @@ pub fn write(analysis: &mut Analysis, out: &Path, opts: &ReportOptions) -> Resul
                 extent: r.extent,
                 colormap: opts.colormap,
                 scale: Scale::Log,
+                value_max: None,
                 width: 1200,
             };
             let pix = crate::render::render_heat(&map)?;

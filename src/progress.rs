@@ -35,7 +35,11 @@ impl Progress {
     /// A bar counting bytes.
     #[must_use]
     pub fn bytes(&self, total: u64, label: &str) -> ProgressBar {
-        self.bar(total, label, "{prefix:>8} [{bar:32}] {bytes}/{total_bytes} {bytes_per_sec} eta {eta}")
+        self.bar(
+            total,
+            label,
+            "{prefix:>8} [{bar:32}] {bytes}/{total_bytes} {bytes_per_sec} eta {eta}",
+        )
     }
 
     /// A bar counting steps.

@@ -7,7 +7,7 @@
 //! | base | -4.0 | most changesets are fine; about 2% prior odds |
 //! | account younger than 1 / 7 / 30 days | +1.6 / +1.2 / +0.7 | vandalism comes disproportionately from new accounts |
 //! | long-standing mapper (over a year, 50+ changesets) | -1.0 | history is the strongest signal |
-//! | deletions: `1.5 ln(d / 10)` capped at 4.5, times the deletion share, from 20 deletions | up to +4.5 | mass deletion is the commonest damage |
+//! | deletions: `1.8 ln(d / 10)` capped at 4.5, times the deletion share, from 20 deletions | up to +4.5 | mass deletion is the commonest damage |
 //! | names that look like adverts (web address, phone number) | +2.0 + 0.5 ln n | spam |
 //! | the same new name on 5+ objects | +0.8 | copy-paste spam or nonsense |
 //! | 5+ names changed | +0.6 | renaming waves |
@@ -65,11 +65,14 @@ pub fn score(c: &ChangesetFeatures) -> Scored {
     } else if age > 365.0 && c.prior_changesets >= 50 {
         add(
             -1.0,
-            format!("long-standing mapper ({} earlier changesets)", c.prior_changesets),
+            format!(
+                "long-standing mapper ({} earlier changesets)",
+                c.prior_changesets
+            ),
         );
     }
     if c.deletes >= 20 {
-        let p = (1.5 * (f(c.deletes) / 10.0).ln()).clamp(0.0, 4.5) * c.deletion_share;
+        let p = (1.8 * (f(c.deletes) / 10.0).ln()).clamp(0.0, 4.5) * c.deletion_share;
         add(
             p,
             format!(
@@ -90,18 +93,27 @@ pub fn score(c: &ChangesetFeatures) -> Scored {
         );
     }
     if c.repeated_name_max >= 5 {
-        add(0.8, format!("the same name given to {} objects", c.repeated_name_max));
+        add(
+            0.8,
+            format!("the same name given to {} objects", c.repeated_name_max),
+        );
     }
     if c.names_changed >= 5 {
         add(0.6, format!("changed {} names", c.names_changed));
     }
     if c.tags_stripped >= 3 {
-        add(0.8, format!("removed most tags from {} objects", c.tags_stripped));
+        add(
+            0.8,
+            format!("removed most tags from {} objects", c.tags_stripped),
+        );
     }
     if c.deleted_mature >= 3 {
         add(
             0.5,
-            format!("deleted {} objects with 5 or more versions", c.deleted_mature),
+            format!(
+                "deleted {} objects with 5 or more versions",
+                c.deleted_mature
+            ),
         );
     }
     if c.offshore_creates >= 3 {

@@ -82,7 +82,10 @@ pub const fn member_code(t: ElementType, id: i64) -> i64 {
 /// Decodes a relation member from [`member_code`].
 #[must_use]
 pub fn member_decode(code: i64) -> Option<(ElementType, i64)> {
-    Some((ElementType::from_code(code.rem_euclid(4))?, code.div_euclid(4)))
+    Some((
+        ElementType::from_code(code.rem_euclid(4))?,
+        code.div_euclid(4),
+    ))
 }
 
 /// An open state database.
@@ -129,18 +132,27 @@ impl Store {
         let conn = Connection::open(path).map_err(err)?;
         // WAL keeps readers working during an ingest; a busy timeout of 0 turns a second writer
         // into a clear "busy" error instead of a wait.
-        conn.pragma_update(None, "journal_mode", "WAL").map_err(err)?;
-        conn.pragma_update(None, "synchronous", "NORMAL").map_err(err)?;
-        conn.pragma_update(None, "foreign_keys", "OFF").map_err(err)?;
-        conn.pragma_update(None, "cache_size", -65_536).map_err(err)?;
+        conn.pragma_update(None, "journal_mode", "WAL")
+            .map_err(err)?;
+        conn.pragma_update(None, "synchronous", "NORMAL")
+            .map_err(err)?;
+        conn.pragma_update(None, "foreign_keys", "OFF")
+            .map_err(err)?;
+        conn.pragma_update(None, "cache_size", -65_536)
+            .map_err(err)?;
         let store = Self {
             conn,
             path: path.to_owned(),
         };
-        store.conn.execute_batch(SCHEMA).map_err(|e| store.map_err(e))?;
+        store
+            .conn
+            .execute_batch(SCHEMA)
+            .map_err(|e| store.map_err(e))?;
         let found: Option<String> = store
             .conn
-            .query_row("SELECT value FROM meta WHERE key='schema'", [], |r| r.get(0))
+            .query_row("SELECT value FROM meta WHERE key='schema'", [], |r| {
+                r.get(0)
+            })
             .optional()
             .map_err(|e| store.map_err(e))?;
         match found.and_then(|v| v.parse::<i64>().ok()) {
@@ -313,7 +325,9 @@ impl IngestTx<'_> {
                  VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
             )
             .map_err(|e| self.err(e))?;
-        let (a, b) = cs.bbox.map_or((None, None), |(lo, hi)| (Some(lo), Some(hi)));
+        let (a, b) = cs
+            .bbox
+            .map_or((None, None), |(lo, hi)| (Some(lo), Some(hi)));
         st.execute(params![
             cs.id,
             cs.uid,
@@ -494,8 +508,15 @@ mod tests {
     #[test]
     fn refs_and_members_round_trip() {
         let r = pack_refs([1, -2, i64::MAX / 8]);
-        assert_eq!(unpack_refs(&r).collect::<Vec<_>>(), vec![1, -2, i64::MAX / 8]);
-        for (t, id) in [(ElementType::Node, 5), (ElementType::Way, 77), (ElementType::Relation, 1)] {
+        assert_eq!(
+            unpack_refs(&r).collect::<Vec<_>>(),
+            vec![1, -2, i64::MAX / 8]
+        );
+        for (t, id) in [
+            (ElementType::Node, 5),
+            (ElementType::Way, 77),
+            (ElementType::Relation, 1),
+        ] {
             assert_eq!(member_decode(member_code(t, id)), Some((t, id)));
         }
     }

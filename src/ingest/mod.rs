@@ -17,7 +17,7 @@ use sha2::{Digest, Sha256};
 
 use crate::model::{ElementType, Op};
 use crate::progress::Progress;
-use crate::store::{pack_refs, pack_tags, member_code, IngestTx, Prev, Store, StoreError};
+use crate::store::{member_code, pack_refs, pack_tags, IngestTx, Prev, Store, StoreError};
 use xml::{OsmSink, RawChangeset, RawElement, ReadError, Root, SinkError};
 
 /// Errors of an ingest; every variant names the file.
@@ -217,7 +217,10 @@ pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>, IngestError> {
 }
 
 fn is_osm_name(p: &Path) -> bool {
-    let n = p.file_name().map(|n| n.to_string_lossy().to_lowercase()).unwrap_or_default();
+    let n = p
+        .file_name()
+        .map(|n| n.to_string_lossy().to_lowercase())
+        .unwrap_or_default();
     [".osc", ".osc.gz", ".osc.bz2", ".osm", ".osm.gz", ".osm.bz2"]
         .iter()
         .any(|s| n.ends_with(s))
@@ -236,7 +239,10 @@ fn line_col(path: &Path, offset: u64) -> (u64, u64) {
         return (0, 0);
     };
     let (mut line, mut col) = (1u64, 1u64);
-    for b in r.bytes().take(usize::try_from(offset).unwrap_or(usize::MAX)) {
+    for b in r
+        .bytes()
+        .take(usize::try_from(offset).unwrap_or(usize::MAX))
+    {
         match b {
             Ok(b'\n') => {
                 line += 1;
@@ -258,7 +264,11 @@ fn line_col(path: &Path, offset: u64) -> (u64, u64) {
 ///
 /// # Errors
 /// The first bad file stops the ingest, which is then rolled back.
-pub fn ingest(store: &mut Store, inputs: &[PathBuf], progress: &Progress) -> Result<IngestSummary, IngestError> {
+pub fn ingest(
+    store: &mut Store,
+    inputs: &[PathBuf],
+    progress: &Progress,
+) -> Result<IngestSummary, IngestError> {
     let started = Instant::now();
     let files = expand_inputs(inputs)?;
     let mut classified = Vec::with_capacity(files.len());
@@ -316,8 +326,17 @@ pub fn ingest(store: &mut Store, inputs: &[PathBuf], progress: &Progress) -> Res
         let root = match root {
             Ok(r) => r,
             // A decompression failure surfaces as an XML read error; say what it really is.
-            Err(IngestError::Parse { message, line, column, offset, .. })
-                if message.contains("gzip") || message.contains("deflate") || message.contains("bzip") || message.contains("decompress") || message.contains("corrupt") =>
+            Err(IngestError::Parse {
+                message,
+                line,
+                column,
+                offset,
+                ..
+            }) if message.contains("gzip")
+                || message.contains("deflate")
+                || message.contains("bzip")
+                || message.contains("decompress")
+                || message.contains("corrupt") =>
             {
                 return Err(IngestError::Format {
                     path: path.clone(),

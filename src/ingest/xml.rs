@@ -168,14 +168,26 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
     let mut depth = 0usize;
 
     loop {
-        let pos = reader.buffer_position();
+        let before = reader.buffer_position();
         let event = reader.read_event_into(&mut buf).map_err(|e| {
             ReadError::Parse(ParseError {
                 offset: reader.error_position(),
                 message: format!("malformed XML: {e}"),
             })
         })?;
-        let perr = |message: String| ReadError::Parse(ParseError { offset: pos, message });
+        // Errors point at the start of the tag: the reader stands just past its '>', and the
+        // event holds the text between '<' and '>' (without an empty tag's '/').
+        let pos = match &event {
+            Event::Start(e) => reader.buffer_position().saturating_sub(e.len() as u64 + 2),
+            Event::Empty(e) => reader.buffer_position().saturating_sub(e.len() as u64 + 3),
+            _ => before,
+        };
+        let perr = |message: String| {
+            ReadError::Parse(ParseError {
+                offset: pos,
+                message,
+            })
+        };
         match event {
             Event::Start(ref e) | Event::Empty(ref e) => {
                 let empty = matches!(event, Event::Empty(_));
@@ -257,7 +269,9 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
             }
             Event::Eof => {
                 if root.is_none() {
-                    return Err(perr("empty document: no <osm> or <osmChange> root".to_owned()));
+                    return Err(perr(
+                        "empty document: no <osm> or <osmChange> root".to_owned(),
+                    ));
                 }
                 if depth > 0 {
                     return Err(perr(
@@ -268,7 +282,9 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                 break;
             }
             Event::Text(ref t) if root.is_none() && !t.as_ref().is_empty() => {
-                return Err(perr("text before the root element: not an XML document".to_owned()));
+                return Err(perr(
+                    "text before the root element: not an XML document".to_owned(),
+                ));
             }
             _ => {}
         }
@@ -300,15 +316,21 @@ fn attr_str<'a>(
 }
 
 fn parse_i64(v: &str, what: &str, element: &str) -> Result<i64, String> {
-    v.trim()
-        .parse::<i64>()
-        .map_err(|_| format!("<{element}> attribute {what}=\"{}\" is not an integer", clip(v)))
+    v.trim().parse::<i64>().map_err(|_| {
+        format!(
+            "<{element}> attribute {what}=\"{}\" is not an integer",
+            clip(v)
+        )
+    })
 }
 
 fn parse_f64(v: &str, what: &str, element: &str) -> Result<f64, String> {
-    v.trim()
-        .parse::<f64>()
-        .map_err(|_| format!("<{element}> attribute {what}=\"{}\" is not a number", clip(v)))
+    v.trim().parse::<f64>().map_err(|_| {
+        format!(
+            "<{element}> attribute {what}=\"{}\" is not a number",
+            clip(v)
+        )
+    })
 }
 
 fn clip(v: &str) -> String {
@@ -341,7 +363,10 @@ fn element_attrs(e: &BytesStart<'_>, el: &mut RawElement) -> Result<(), String> 
             }
             b"timestamp" => {
                 el.timestamp = parse_timestamp(&v).ok_or_else(|| {
-                    format!("<{ename}> attribute timestamp=\"{}\" is not an ISO 8601 UTC time", clip(&v))
+                    format!(
+                        "<{ename}> attribute timestamp=\"{}\" is not an ISO 8601 UTC time",
+                        clip(&v)
+                    )
                 })?;
             }
             b"visible" => el.visible = &*v != "false",
@@ -373,7 +398,10 @@ fn changeset_attrs(e: &BytesStart<'_>, cs: &mut RawChangeset) -> Result<(), Stri
         let v = attr_str(&a)?;
         let ts = |v: &str, what: &str| {
             parse_timestamp(v).ok_or_else(|| {
-                format!("<changeset> attribute {what}=\"{}\" is not an ISO 8601 UTC time", clip(v))
+                format!(
+                    "<changeset> attribute {what}=\"{}\" is not an ISO 8601 UTC time",
+                    clip(v)
+                )
             })
         };
         match a.key.as_ref().as_bytes() {
@@ -446,7 +474,11 @@ fn child(
             };
             check_len(&k, "tag key")?;
             check_len(&v, &format!("value of tag {}", clip(&k)))?;
-            let tags = if in_changeset { &mut cs.tags } else { &mut el.tags };
+            let tags = if in_changeset {
+                &mut cs.tags
+            } else {
+                &mut el.tags
+            };
             if tags.len() >= MAX_TAGS {
                 return Err(format!("more than {MAX_TAGS} tags on one element"));
             }
@@ -459,10 +491,7 @@ fn child(
                 .ok_or("<nd> without a ref attribute")?;
             let r = parse_i64(&attr_str(&r)?, "ref", "nd")?;
             if el.refs.len() >= MAX_WAY_NODES {
-                return Err(format!(
-                    "way {} has more than {MAX_WAY_NODES} nodes",
-                    el.id
-                ));
+                return Err(format!("way {} has more than {MAX_WAY_NODES} nodes", el.id));
             }
             el.refs.push(r);
         }
@@ -480,7 +509,10 @@ fn child(
                 return Err("<member> without type and ref attributes".to_owned());
             };
             let Some(t) = ElementType::from_name(t.as_bytes()) else {
-                return Err(format!("<member> type=\"{}\" is not node, way or relation", clip(&t)));
+                return Err(format!(
+                    "<member> type=\"{}\" is not node, way or relation",
+                    clip(&t)
+                ));
             };
             if el.members.len() >= MAX_MEMBERS {
                 return Err(format!(
@@ -516,11 +548,17 @@ pub fn parse_timestamp(s: &str) -> Option<i64> {
         let (y, mo, d) = (num(0..4)?, num(5..7)?, num(8..10)?);
         let (h, mi, se) = (num(11..13)?, num(14..16)?, num(17..19)?);
         #[allow(clippy::cast_possible_truncation, reason = "four digits fit in i32")]
-        let date = chrono::NaiveDate::from_ymd_opt(y as i32, u32::try_from(mo).ok()?, u32::try_from(d).ok()?)?;
+        let date = chrono::NaiveDate::from_ymd_opt(
+            y as i32,
+            u32::try_from(mo).ok()?,
+            u32::try_from(d).ok()?,
+        )?;
         if h > 23 || mi > 59 || se > 60 {
             return None;
         }
-        let days = date.signed_duration_since(chrono::NaiveDate::from_ymd_opt(1970, 1, 1)?).num_days();
+        let days = date
+            .signed_duration_since(chrono::NaiveDate::from_ymd_opt(1970, 1, 1)?)
+            .num_days();
         return Some(days * 86_400 + h * 3600 + mi * 60 + se);
     }
     chrono::DateTime::parse_from_rfc3339(s)
@@ -563,7 +601,10 @@ mod tests {
         // Source: Python datetime(2026, 11, 16, tzinfo=timezone.utc).timestamp() == 1794787200.
         assert_eq!(parse_timestamp("1970-01-01T00:00:00Z"), Some(0));
         assert_eq!(parse_timestamp("2026-11-16T00:00:00Z"), Some(1_794_787_200));
-        assert_eq!(parse_timestamp("2026-11-16T01:00:00+01:00"), Some(1_794_787_200));
+        assert_eq!(
+            parse_timestamp("2026-11-16T01:00:00+01:00"),
+            Some(1_794_787_200)
+        );
         assert_eq!(parse_timestamp("2026-13-16T00:00:00Z"), None);
         assert_eq!(parse_timestamp("yesterday"), None);
     }
@@ -605,7 +646,8 @@ mod tests {
 
     #[test]
     fn node_without_coordinates_in_snapshot_is_skipped() {
-        let (_, c) = read(r#"<osm><node id="1" version="1"/><node id="2" lat="1" lon="1"/></osm>"#).unwrap();
+        let (_, c) =
+            read(r#"<osm><node id="1" version="1"/><node id="2" lat="1" lon="1"/></osm>"#).unwrap();
         assert_eq!(c.els.len(), 1);
         assert_eq!(c.skipped, vec!["node without valid coordinates"]);
     }
@@ -618,15 +660,35 @@ mod tests {
         };
         assert!(e("<html></html>").message.contains("expected root element"));
         let p = e(r#"<osm><node id="x" lat="1" lon="1"/></osm>"#);
-        assert!(p.message.contains("id=\"x\" is not an integer"), "{}", p.message);
+        assert!(
+            p.message.contains("id=\"x\" is not an integer"),
+            "{}",
+            p.message
+        );
         assert_eq!(p.offset, 5);
-        assert!(e(r#"<osm><node lat="1" lon="1"/></osm>"#).message.contains("without an id"));
-        assert!(e(r#"<osm><node id="1" lat="91" lon="1"/></osm>"#).message.contains("out of range"));
-        assert!(e(r#"<osm><node id="1" lat="NaN" lon="1"/></osm>"#).message.contains("out of range"));
-        assert!(e(r#"<osm><node id="1" lat="1" lon="1">"#).message.contains("truncated"));
-        assert!(e(r#"<osmChange><node id="1" lat="1" lon="1"/></osmChange>"#).message.contains("outside a <create>"));
+        assert!(e(r#"<osm><node lat="1" lon="1"/></osm>"#)
+            .message
+            .contains("without an id"));
+        assert!(e(r#"<osm><node id="1" lat="91" lon="1"/></osm>"#)
+            .message
+            .contains("out of range"));
+        assert!(e(r#"<osm><node id="1" lat="NaN" lon="1"/></osm>"#)
+            .message
+            .contains("out of range"));
+        assert!(e(r#"<osm><node id="1" lat="1" lon="1">"#)
+            .message
+            .contains("truncated"));
+        assert!(
+            e(r#"<osmChange><node id="1" lat="1" lon="1"/></osmChange>"#)
+                .message
+                .contains("outside a <create>")
+        );
         assert!(e("").message.contains("empty"));
         let long = "x".repeat(MAX_TAG_BYTES + 1);
-        assert!(e(&format!(r#"<osm><node id="1" lat="1" lon="1"><tag k="a" v="{long}"/></node></osm>"#)).message.contains("at most"));
+        assert!(e(&format!(
+            r#"<osm><node id="1" lat="1" lon="1"><tag k="a" v="{long}"/></node></osm>"#
+        ))
+        .message
+        .contains("at most"));
     }
 }
