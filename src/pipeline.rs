@@ -141,6 +141,16 @@ fn bbox_of(points: impl Iterator<Item = (f64, f64)>) -> Option<geo::Rect<f64>> {
     b.map(|(a, c, d, e)| geo::Rect::new((a, c), (d, e)))
 }
 
+/// Widens a map extent by 6% on each side so edge cells are not cut, clamped to valid degrees.
+fn pad(r: geo::Rect<f64>) -> geo::Rect<f64> {
+    let dx = r.width().max(1e-4) * 0.06;
+    let dy = r.height().max(1e-4) * 0.06;
+    geo::Rect::new(
+        ((r.min().x - dx).max(-180.0), (r.min().y - dy).max(-85.0)),
+        ((r.max().x + dx).min(180.0), (r.max().y + dy).min(85.0)),
+    )
+}
+
 /// Runs every analysis stage.
 ///
 /// # Errors
@@ -445,6 +455,7 @@ pub fn analyse(
                         .map(|ll| (ll.lng(), ll.lat())),
                 )
             })
+            .map(pad)
             .unwrap_or_else(|| geo::Rect::new((-1.0, -1.0), (1.0, 1.0)));
         out_regions.push(RegionAnalysis {
             report: RegionReport {

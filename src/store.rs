@@ -130,8 +130,8 @@ impl Store {
             source,
         };
         let conn = Connection::open(path).map_err(err)?;
-        // WAL keeps readers working during an ingest; a busy timeout of 0 turns a second writer
-        // into a clear "busy" error instead of a wait.
+        // WAL keeps readers working during an ingest; a short busy timeout turns a second
+        // writer into a clear "busy" error instead of a long wait.
         conn.pragma_update(None, "journal_mode", "WAL")
             .map_err(err)?;
         conn.pragma_update(None, "synchronous", "NORMAL")
