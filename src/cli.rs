@@ -82,9 +82,10 @@ pub struct ReportArgs {
     /// GeoJSON polygons with a `name` property, one report page each.
     #[arg(long)]
     pub regions: Option<PathBuf>,
-    /// GeoJSON land polygons (enables offshore detection and the land backdrop).
-    #[arg(long)]
-    pub land: Option<PathBuf>,
+    /// Land layer: `world` (built in: Natural Earth 1:10m land), a GeoJSON file of land
+    /// polygons, or `none` (no backdrop, no offshore detection).
+    #[arg(long, default_value = "world")]
+    pub land: crate::land::LandSource,
     /// H3 resolution 5-10 (default: from the size of the edited area).
     #[arg(long, value_parser = parse_resolution)]
     pub resolution: Option<h3o::Resolution>,
@@ -257,7 +258,7 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
             drop(store);
             let opts = ReportOptions {
                 regions: Some(files.regions.clone()),
-                land: Some(files.land.clone()),
+                land: crate::land::LandSource::File(files.land.clone()),
                 // Fixed so the demo's report is the same on every run.
                 generated_at: "demo run (fictional data)".to_owned(),
                 ..ReportOptions::default()

@@ -22,6 +22,66 @@ pub enum LandError {
     },
     #[error("{path}: not a GeoJSON land layer: {message}")]
     Format { path: PathBuf, message: String },
+    #[error("the built-in world land layer is damaged: {0}")]
+    Builtin(String),
+}
+
+/// The default world land layer: Natural Earth 1:10m land (public domain), from the npm package
+/// world-atlas 2.0.2, made planar at the antimeridian and packed by `scripts/land/build_land.mjs`.
+const WORLD_LAND: &[u8] = include_bytes!("../assets/land/ne-10m-land.bin.gz");
+
+/// Decodes the packed land layer format written by `scripts/land/build_land.mjs`.
+fn decode_packed(gz: &[u8]) -> Result<Vec<Polygon<f64>>, String> {
+    use std::io::Read as _;
+    let mut raw = Vec::new();
+    flate2::read::GzDecoder::new(gz)
+        .read_to_end(&mut raw)
+        .map_err(|e| e.to_string())?;
+    let body = raw.strip_prefix(b"HVLAND01").ok_or("missing HVLAND01 header")?;
+    let mut at = 0usize;
+    let mut varint = || -> Result<u64, String> {
+        let mut v = 0u64;
+        for shift in (0..64).step_by(7) {
+            let b = *body.get(at).ok_or("unexpected end of data")?;
+            at += 1;
+            v |= u64::from(b & 0x7f) << shift;
+            if b & 0x80 == 0 {
+                return Ok(v);
+            }
+        }
+        Err("varint too long".to_owned())
+    };
+    let zigzag = |v: u64| -> i64 {
+        #[allow(clippy::cast_possible_wrap, reason = "zigzag decoding is bit arithmetic")]
+        let x = (v >> 1) as i64 ^ -((v & 1) as i64);
+        x
+    };
+    let n_poly = varint()?;
+    let mut polygons = Vec::new();
+    for _ in 0..n_poly {
+        let n_rings = varint()?;
+        let mut rings = Vec::new();
+        for _ in 0..n_rings {
+            let n = varint()?;
+            let (mut x, mut y) = (0i64, 0i64);
+            let mut coords = Vec::new();
+            for _ in 0..n {
+                x += zigzag(varint()?);
+                y += zigzag(varint()?);
+                #[allow(clippy::cast_precision_loss, reason = "micro-degrees fit f64 exactly")]
+                coords.push(geo::Coord {
+                    x: x as f64 / 1e6,
+                    y: y as f64 / 1e6,
+                });
+            }
+            rings.push(geo::LineString::new(coords));
+        }
+        let mut it = rings.into_iter();
+        if let Some(outer) = it.next() {
+            polygons.push(Polygon::new(outer, it.collect()));
+        }
+    }
+    Ok(polygons)
 }
 
 struct Indexed {
@@ -33,6 +93,43 @@ impl RTreeObject for Indexed {
     type Envelope = AABB<[f64; 2]>;
     fn envelope(&self) -> Self::Envelope {
         self.envelope
+    }
+}
+
+/// Where a run's land layer comes from.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum LandSource {
+    /// The built-in world layer ([`Land::world`]).
+    World,
+    /// A GeoJSON file of land polygons.
+    File(PathBuf),
+    /// No land layer: plain map backdrop, offshore detection off.
+    None,
+}
+
+impl std::str::FromStr for LandSource {
+    type Err = std::convert::Infallible;
+    /// `world`, `none`, or a path.
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Ok(match s {
+            "world" => Self::World,
+            "none" => Self::None,
+            path => Self::File(PathBuf::from(path)),
+        })
+    }
+}
+
+impl LandSource {
+    /// Loads the layer.
+    ///
+    /// # Errors
+    /// When the file cannot be read or is not a land layer.
+    pub fn load(&self) -> Result<Land, LandError> {
+        match self {
+            Self::World => Land::world(),
+            Self::File(p) => Land::from_geojson_file(p),
+            Self::None => Ok(Land::empty()),
+        }
     }
 }
 
@@ -48,6 +145,17 @@ impl Land {
     #[must_use]
     pub fn empty() -> Self {
         Self::from_polygons(Vec::new())
+    }
+
+    /// The built-in world land layer (Natural Earth 1:10m land; about 400 000 points, quantised
+    /// to about 0.004 degree, so coastlines are good to a few hundred metres).
+    ///
+    /// # Errors
+    /// Only if the embedded data were damaged.
+    pub fn world() -> Result<Self, LandError> {
+        decode_packed(WORLD_LAND)
+            .map(Self::from_polygons)
+            .map_err(LandError::Builtin)
     }
 
     /// Builds the layer from polygons.
@@ -160,5 +268,28 @@ impl Land {
                 .map(nearest)
                 .fold(f64::INFINITY, f64::min),
         )
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn world_layer_knows_some_places() {
+        let w = Land::world().unwrap();
+        assert!(w.polygons().len() > 4000);
+        let at = |lat, lon| Coord::from_degrees(lat, lon).unwrap();
+        // From memory, each checked with PyPI global-land-mask: inland points and open ocean,
+        // with land on both sides of the antimeridian.
+        assert!(w.is_land(at(48.0, 10.0)));
+        assert!(w.is_land(at(-25.0, 135.0)));
+        assert!(w.is_land(at(-17.8, 178.0)), "Fiji's main island, next to the antimeridian");
+        assert!(w.is_land(at(67.0, -179.0)), "far north-east Asia, east of the antimeridian");
+        assert!(w.is_land(at(68.0, 179.9)), "far north-east Asia, west of the antimeridian");
+        assert!(!w.is_land(at(45.2, -33.6)), "mid North Atlantic");
+        assert!(!w.is_land(at(0.0, -150.0)));
+        let d = w.distance_to_land_m(at(45.2, -33.6)).unwrap();
+        assert!(d > 500_000.0, "{d}");
     }
 }

@@ -12,7 +12,7 @@ use h3o::{CellIndex, LatLng, Resolution};
 use crate::cells::{aggregate, CellWeeks, Kind};
 use crate::detect::{detect, DetectConfig};
 use crate::features::{changeset_features, edit_facts, FeatureConfig, MapperHistory};
-use crate::land::{Land, LandError};
+use crate::land::{Land, LandError, LandSource};
 use crate::locate::{count_placement, load_edits};
 use crate::model::{IsoWeek, Op};
 use crate::progress::Progress;
@@ -49,7 +49,7 @@ pub struct ReportOptions {
     /// Report week; default: the last complete ISO week in the data.
     pub week: Option<IsoWeek>,
     pub regions: Option<PathBuf>,
-    pub land: Option<PathBuf>,
+    pub land: LandSource,
     /// H3 resolution; default from the extent of the week's edits.
     pub resolution: Option<Resolution>,
     pub baseline_weeks: u32,
@@ -69,7 +69,7 @@ impl Default for ReportOptions {
         Self {
             week: None,
             regions: None,
-            land: None,
+            land: LandSource::World,
             resolution: None,
             baseline_weeks: 12,
             flag_threshold: 0.5,
@@ -178,10 +178,7 @@ pub fn analyse(
         week.offset(-1)
     ));
 
-    let land = match &opts.land {
-        Some(p) => Land::from_geojson_file(p)?,
-        None => Land::empty(),
-    };
+    let land = opts.land.load()?;
     let regions: Vec<Region> = match &opts.regions {
         Some(p) => crate::regions::load(p)?,
         None => crate::regions::everything(),

@@ -49,3 +49,23 @@ fn h3_cells_match_reference_bindings() {
         assert_eq!(c.to_string(), row[3], "lat={lat} lon={lon} res={res}");
     }
 }
+
+#[test]
+fn world_land_layer_agrees_with_an_independent_mask() {
+    // Source: PyPI global-land-mask (GLOBE-derived), 10 000 random points farther than 5 km from
+    // its coasts, written by scripts/land/land_mask_reference.py. Acceptance: at least 99% agree.
+    let land = hexvigil::land::Land::world().unwrap();
+    let rows = rows("land_points.csv");
+    assert_eq!(rows.len(), 10_000);
+    let agree = rows
+        .iter()
+        .filter(|r| {
+            let c = Coord::from_degrees(r[0].parse().unwrap(), r[1].parse().unwrap()).unwrap();
+            land.is_land(c) == (r[2] == "1")
+        })
+        .count();
+    #[allow(clippy::cast_precision_loss)]
+    let share = agree as f64 / rows.len() as f64;
+    eprintln!("land layer agreement: {agree} of {} ({:.2}%)", rows.len(), share * 100.0);
+    assert!(share >= 0.99, "only {:.2}% agree", share * 100.0);
+}
