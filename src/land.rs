@@ -4,11 +4,8 @@
 
 use std::path::{Path, PathBuf};
 
-use geo::{
-    BoundingRect, Closest, ClosestPoint, Contains, Distance, Haversine, MultiPolygon, Point,
-    Polygon,
-};
-use rstar::{RTree, RTreeObject, AABB};
+use geo::{Closest, ClosestPoint, Distance, Haversine, MultiPolygon, Point, Polygon};
+use rstar::{RTree, AABB};
 
 use crate::model::Coord;
 
@@ -37,7 +34,9 @@ fn decode_packed(gz: &[u8]) -> Result<Vec<Polygon<f64>>, String> {
     flate2::read::GzDecoder::new(gz)
         .read_to_end(&mut raw)
         .map_err(|e| e.to_string())?;
-    let body = raw.strip_prefix(b"HVLAND01").ok_or("missing HVLAND01 header")?;
+    let body = raw
+        .strip_prefix(b"HVLAND01")
+        .ok_or("missing HVLAND01 header")?;
     let mut at = 0usize;
     let mut varint = || -> Result<u64, String> {
         let mut v = 0u64;
@@ -52,7 +51,10 @@ fn decode_packed(gz: &[u8]) -> Result<Vec<Polygon<f64>>, String> {
         Err("varint too long".to_owned())
     };
     let zigzag = |v: u64| -> i64 {
-        #[allow(clippy::cast_possible_wrap, reason = "zigzag decoding is bit arithmetic")]
+        #[allow(
+            clippy::cast_possible_wrap,
+            reason = "zigzag decoding is bit arithmetic"
+        )]
         let x = (v >> 1) as i64 ^ -((v & 1) as i64);
         x
     };
@@ -82,18 +84,6 @@ fn decode_packed(gz: &[u8]) -> Result<Vec<Polygon<f64>>, String> {
         }
     }
     Ok(polygons)
-}
-
-struct Indexed {
-    index: usize,
-    envelope: AABB<[f64; 2]>,
-}
-
-impl RTreeObject for Indexed {
-    type Envelope = AABB<[f64; 2]>;
-    fn envelope(&self) -> Self::Envelope {
-        self.envelope
-    }
 }
 
 /// Where a run's land layer comes from.
@@ -133,10 +123,18 @@ impl LandSource {
     }
 }
 
-/// Land polygons (lon/lat degrees) with a spatial index.
+/// One polygon edge, in degrees.
+type Edge = rstar::primitives::Line<[f64; 2]>;
+
+/// Land polygons (lon/lat degrees) with an R-tree of their edges.
+///
+/// Point-in-land is an even-odd ray cast eastward that only visits the edges the ray's envelope
+/// touches, and distance to land is a nearest-edge search, so both cost O(log n) plus the
+/// crossings, however large a polygon is (a continent has tens of thousands of points; testing
+/// it whole per edit was the slow part of offshore checks).
 pub struct Land {
     polygons: Vec<Polygon<f64>>,
-    tree: RTree<Indexed>,
+    edges: RTree<Edge>,
 }
 
 impl Land {
@@ -158,23 +156,22 @@ impl Land {
             .map_err(LandError::Builtin)
     }
 
-    /// Builds the layer from polygons.
+    /// Builds the layer from polygons (exteriors and holes alike become indexed edges).
     #[must_use]
     pub fn from_polygons(polygons: Vec<Polygon<f64>>) -> Self {
-        let items = polygons
-            .iter()
-            .enumerate()
-            .filter_map(|(index, p)| {
-                let r = p.bounding_rect()?;
-                Some(Indexed {
-                    index,
-                    envelope: AABB::from_corners([r.min().x, r.min().y], [r.max().x, r.max().y]),
-                })
-            })
-            .collect();
+        let mut edges = Vec::new();
+        for p in &polygons {
+            for ring in std::iter::once(p.exterior()).chain(p.interiors()) {
+                edges.extend(
+                    ring.lines()
+                        .filter(|l| l.start != l.end)
+                        .map(|l| Edge::new([l.start.x, l.start.y], [l.end.x, l.end.y])),
+                );
+            }
+        }
         Self {
             polygons,
-            tree: RTree::bulk_load(items),
+            edges: RTree::bulk_load(edges),
         }
     }
 
@@ -222,52 +219,59 @@ impl Land {
         &self.polygons
     }
 
-    /// Whether a point is on land.
+    /// Whether a point is on land (even-odd rule over every ring, so holes are water).
     #[must_use]
     pub fn is_land(&self, c: Coord) -> bool {
-        let p = Point::new(c.lon(), c.lat());
-        self.tree
-            .locate_in_envelope_intersecting(AABB::from_point([c.lon(), c.lat()]))
-            .any(|it| self.polygons[it.index].contains(&p))
+        let (x, y) = (c.lon(), c.lat());
+        let ray = AABB::from_corners([x, y], [f64::from(f32::MAX), y]);
+        let mut inside = false;
+        for e in self.edges.locate_in_envelope_intersecting(ray) {
+            let (a, b) = (e.from, e.to);
+            if (a[1] > y) != (b[1] > y) {
+                let xi = a[0] + (y - a[1]) * (b[0] - a[0]) / (b[1] - a[1]);
+                if xi > x {
+                    inside = !inside;
+                }
+            }
+        }
+        inside
     }
 
     /// Distance in metres from a point to the nearest land (0 on land); `None` when the layer is
-    /// empty. Searches polygons whose boxes lie within `search_deg` degrees first, then all.
+    /// empty. The candidates are the 16 edges nearest in degrees; the answer is the haversine
+    /// distance to the closest point of the best of them (degrees shrink in longitude away from
+    /// the equator, so the nearest in degrees is not always the nearest on the ground).
     #[must_use]
     pub fn distance_to_land_m(&self, c: Coord) -> Option<f64> {
-        if self.polygons.is_empty() {
+        if self.edges.size() == 0 {
             return None;
         }
         if self.is_land(c) {
             return Some(0.0);
         }
         let p = Point::new(c.lon(), c.lat());
-        let nearest = |poly: &Polygon<f64>| -> f64 {
-            match poly.closest_point(&p) {
-                Closest::Intersection(q) | Closest::SinglePoint(q) => Haversine.distance(p, q),
-                Closest::Indeterminate => f64::INFINITY,
-            }
-        };
-        // Boxes near the point first: a degree of latitude is ~111 km, so 0.5 degree covers any
-        // offshore distance the detectors care about; fall back to a full scan beyond that.
-        let near = AABB::from_corners(
-            [c.lon() - 0.5, c.lat() - 0.5],
-            [c.lon() + 0.5, c.lat() + 0.5],
-        );
         let best = self
-            .tree
-            .locate_in_envelope_intersecting(near)
-            .map(|it| nearest(&self.polygons[it.index]))
+            .edges
+            .nearest_neighbor_iter([c.lon(), c.lat()])
+            .take(16)
+            .map(|e| {
+                let line = geo::Line::new(
+                    geo::Coord {
+                        x: e.from[0],
+                        y: e.from[1],
+                    },
+                    geo::Coord {
+                        x: e.to[0],
+                        y: e.to[1],
+                    },
+                );
+                match line.closest_point(&p) {
+                    Closest::Intersection(q) | Closest::SinglePoint(q) => Haversine.distance(p, q),
+                    Closest::Indeterminate => f64::INFINITY,
+                }
+            })
             .fold(f64::INFINITY, f64::min);
-        if best.is_finite() {
-            return Some(best);
-        }
-        Some(
-            self.polygons
-                .iter()
-                .map(nearest)
-                .fold(f64::INFINITY, f64::min),
-        )
+        Some(best)
     }
 }
 
@@ -284,9 +288,18 @@ mod tests {
         // with land on both sides of the antimeridian.
         assert!(w.is_land(at(48.0, 10.0)));
         assert!(w.is_land(at(-25.0, 135.0)));
-        assert!(w.is_land(at(-17.8, 178.0)), "Fiji's main island, next to the antimeridian");
-        assert!(w.is_land(at(67.0, -179.0)), "far north-east Asia, east of the antimeridian");
-        assert!(w.is_land(at(68.0, 179.9)), "far north-east Asia, west of the antimeridian");
+        assert!(
+            w.is_land(at(-17.8, 178.0)),
+            "Fiji's main island, next to the antimeridian"
+        );
+        assert!(
+            w.is_land(at(67.0, -179.0)),
+            "far north-east Asia, east of the antimeridian"
+        );
+        assert!(
+            w.is_land(at(68.0, 179.9)),
+            "far north-east Asia, west of the antimeridian"
+        );
         assert!(!w.is_land(at(45.2, -33.6)), "mid North Atlantic");
         assert!(!w.is_land(at(0.0, -150.0)));
         let d = w.distance_to_land_m(at(45.2, -33.6)).unwrap();

@@ -66,6 +66,10 @@ fn world_land_layer_agrees_with_an_independent_mask() {
         .count();
     #[allow(clippy::cast_precision_loss)]
     let share = agree as f64 / rows.len() as f64;
-    eprintln!("land layer agreement: {agree} of {} ({:.2}%)", rows.len(), share * 100.0);
+    eprintln!(
+        "land layer agreement: {agree} of {} ({:.2}%)",
+        rows.len(),
+        share * 100.0
+    );
     assert!(share >= 0.99, "only {:.2}% agree", share * 100.0);
 }
