@@ -16,6 +16,7 @@
 //! spread (`k = ∞`) this is exactly the Gamma-Poisson predictive above.
 
 use statrs::function::beta::checked_beta_reg;
+use statrs::function::gamma::checked_gamma_lr;
 
 /// Gamma prior on a cell's weekly rate.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -156,9 +157,29 @@ pub fn nb_tail(k: u64, r: f64, p: f64) -> f64 {
     if k == 0 {
         return 1.0;
     }
+    if r > 1e8 {
+        return poisson_tail(k, r * (1.0 - p) / p);
+    }
     #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
     let kf = k as f64;
     checked_beta_reg(kf, r, 1.0 - p).map_or(f64::NAN, |v| v.clamp(0.0, 1.0))
+}
+
+/// Upper tail P(X ≥ k) of the Poisson distribution with mean `lambda`; equals SciPy's
+/// `poisson.sf(k - 1, lambda)`. Uses P(X ≥ k) = P(k, λ), the regularised lower incomplete gamma
+/// function. It is the limit of [`nb_tail`] as the shape grows, which [`nb_tail`] switches to
+/// when the shape is so large that the beta function loses precision.
+#[must_use]
+pub fn poisson_tail(k: u64, lambda: f64) -> f64 {
+    if k == 0 {
+        return 1.0;
+    }
+    if lambda <= 0.0 {
+        return 0.0;
+    }
+    #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+    let kf = k as f64;
+    checked_gamma_lr(kf, lambda).map_or(f64::NAN, |v| v.clamp(0.0, 1.0))
 }
 
 /// Benjamini-Hochberg adjusted p-values (q-values), in the input's order.

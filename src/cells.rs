@@ -65,12 +65,21 @@ impl Kind {
 }
 
 /// Counts of one cell in one week.
-#[derive(Debug, Clone, Default, PartialEq, Eq)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct CellWeek {
     pub edits: u64,
     pub creates: u64,
     pub modifies: u64,
     pub deletes: u64,
+    /// Edits by operation and element type: `[op code][element type code]`.
+    pub by_type: [[u64; 3]; 3],
+    /// Deletions by newcomers.
+    pub newcomer_deletes: u64,
+    /// Objects created where the land layer says water (legitimate maritime ones included).
+    pub water_creates: u64,
+    /// Sum and maximum of the edits' changeset scores.
+    pub score_sum: f64,
+    pub score_max: f64,
     /// Deleted objects in their own right (see `EditFacts::deleted_feature`).
     pub deleted_features: u64,
     pub newcomer_edits: u64,
@@ -127,7 +136,8 @@ pub fn cell_of(pos: crate::model::Coord, res: Resolution) -> Option<CellIndex> {
 }
 
 /// Aggregates placed edits. `week_of[i]` is edit `i`'s week index in the window (`None`
-/// outside), `flagged(changeset)` says whether its changeset is flagged.
+/// outside), `score(changeset)` gives its changeset's score, and scores at or above
+/// `flag_threshold` are flagged.
 #[must_use]
 pub fn aggregate(
     edits: &[Edit],
@@ -135,7 +145,8 @@ pub fn aggregate(
     week_of: &[Option<usize>],
     weeks: usize,
     res: Resolution,
-    flagged: &dyn Fn(i64) -> bool,
+    score: &dyn Fn(i64) -> f64,
+    flag_threshold: f64,
 ) -> CellWeeks {
     let mut cells: BTreeMap<CellIndex, Vec<CellWeek>> = BTreeMap::new();
     let mut contributions: HashMap<(CellIndex, Kind), BTreeMap<i64, u64>> = HashMap::new();
@@ -155,7 +166,20 @@ pub fn aggregate(
             Op::Modify => cw.modifies += 1,
             Op::Delete => cw.deletes += 1,
         }
-        let is_flagged = flagged(e.changeset);
+        let sc = score(e.changeset);
+        let is_flagged = sc >= flag_threshold;
+        #[allow(
+            clippy::cast_possible_truncation,
+            clippy::cast_sign_loss,
+            reason = "codes are 0..=2"
+        )]
+        {
+            cw.by_type[e.op.code() as usize][e.etype.code() as usize] += 1;
+        }
+        cw.newcomer_deletes += u64::from(f.newcomer && e.op == Op::Delete);
+        cw.water_creates += u64::from(f.water_create);
+        cw.score_sum += sc;
+        cw.score_max = cw.score_max.max(sc);
         cw.newcomer_edits += u64::from(f.newcomer);
         cw.offshore_creates += u64::from(f.offshore_create);
         cw.deleted_features += u64::from(f.deleted_feature);

@@ -129,6 +129,8 @@ pub struct EditFacts {
     pub deleted_feature: bool,
     /// A non-maritime tagged object created in water far from land.
     pub offshore_create: bool,
+    /// Any object created at a place the land layer calls water (maritime or not).
+    pub water_create: bool,
     /// Distance from land of an offshore creation, metres.
     pub offshore_m: f64,
     /// Three or more tags removed by a modification.
@@ -248,9 +250,10 @@ pub fn edit_facts(
             }
             let tagged = !e.tags.is_empty();
             let judged = e.etype != ElementType::Relation || tagged;
-            if e.op == Op::Create && tagged && judged && !land.is_empty() && !is_maritime(&e.tags) {
+            if e.op == Op::Create && !land.is_empty() {
                 if let Some(d) = e.pos.and_then(|p| land.distance_to_land_m(p)) {
-                    if d >= cfg.offshore_min_m {
+                    f.water_create = d > 0.0;
+                    if d >= cfg.offshore_min_m && tagged && judged && !is_maritime(&e.tags) {
                         f.offshore_create = true;
                         f.offshore_m = d;
                     }

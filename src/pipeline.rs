@@ -168,7 +168,17 @@ pub fn analyse(
         Some(w) => w,
         None => default_week(store)?,
     };
-    let n_hist = opts.baseline_weeks.max(1);
+    // History starts with the data: weeks before the first edit stored are unknown, not empty.
+    let first_ts: Option<i64> = store
+        .conn()
+        .query_row("SELECT MIN(ts) FROM edits", [], |r| r.get(0))
+        .map_err(|e| store.map_err(e))?;
+    let known = first_ts
+        .and_then(IsoWeek::of_unix)
+        .map_or(0, |f| (week.ordinal() - f.ordinal()).max(0));
+    let n_hist = opts
+        .baseline_weeks
+        .min(u32::try_from(known).unwrap_or(u32::MAX));
     let first_week = week.offset(-i64::from(n_hist));
     let weeks = n_hist as usize + 1;
     let from = first_week.start_unix();
@@ -209,7 +219,7 @@ pub fn analyse(
         .map(|(i, f)| (f.id, (score(f), i)))
         .collect();
     let threshold = opts.flag_threshold;
-    let flagged = |cs: i64| scored.get(&cs).is_some_and(|s| s.0.score >= threshold);
+    let score_of = |cs: i64| scored.get(&cs).map_or(0.0, |s| s.0.score);
 
     let week_of: Vec<Option<usize>> = edits
         .iter()
@@ -234,7 +244,7 @@ pub fn analyse(
         });
         default_resolution(km)
     });
-    let cw = aggregate(&edits, &facts, &week_of, weeks, res, &flagged);
+    let cw = aggregate(&edits, &facts, &week_of, weeks, res, &score_of, threshold);
 
     // Which region each cell, and so each edit, belongs to.
     let region_of_cell: HashMap<CellIndex, usize> = cw
@@ -262,7 +272,12 @@ pub fn analyse(
             .copied()
             .filter(|c| region_of_cell.get(c) == Some(&ri))
             .collect();
-        let tests = detect(&cw, &cells, !land.is_empty(), &opts.detect);
+        // Without a single week of history there is nothing to compare with.
+        let tests = if n_hist == 0 {
+            Vec::new()
+        } else {
+            detect(&cw, &cells, !land.is_empty(), &opts.detect)
+        };
 
         // Counts for the week and the trend.
         let mut counts = Counts::default();
@@ -463,6 +478,7 @@ pub fn analyse(
                     counts,
                     baseline_counts,
                     placement,
+                    incidents: crate::detect::incidents(&outliers),
                     outliers,
                     flagged_changesets,
                 },

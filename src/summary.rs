@@ -36,6 +36,9 @@ pub struct RegionSummary {
     pub baseline_counts: BaselineCounts,
     /// How edits were given a position.
     pub placement: Placement,
+    /// Outlier cells merged into incidents (neighbouring cells of one kind sharing changesets),
+    /// strongest evidence first.
+    pub incidents: Vec<Incident>,
     /// Outlier cells, strongest evidence first.
     pub outliers: Vec<Outlier>,
     /// Changesets scoring at or above the flag threshold, highest score first.
@@ -105,6 +108,28 @@ pub struct Outlier {
     /// Changesets contributing to the count, most contributing first.
     pub changesets: Vec<i64>,
     /// Their mappers (display names), most contributing first.
+    pub mappers: Vec<String>,
+}
+
+/// Neighbouring outlier cells of one kind that share changesets, taken together.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Incident {
+    pub kind: String,
+    /// H3 cells, as in `outliers`.
+    pub cells: Vec<String>,
+    /// Centre: the mean of the cell centres weighted by their observed counts.
+    pub lat: f64,
+    pub lon: f64,
+    /// `[min_lon, min_lat, max_lon, max_lat]` of the cells' boundaries.
+    pub bbox: [f64; 4],
+    /// Sums over the cells.
+    pub observed: u64,
+    pub expected: f64,
+    /// The smallest over the cells.
+    pub p_value: f64,
+    pub q_value: f64,
+    /// Changesets and mappers, most contributing first.
+    pub changesets: Vec<i64>,
     pub mappers: Vec<String>,
 }
 

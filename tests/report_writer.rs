@@ -226,6 +226,7 @@ fn region(name: &str, slug: &str, hostile: bool) -> RegionReport {
                 changeset_bbox: 27,
                 unplaced: 2,
             },
+            incidents: hexvigil::detect::incidents(&outliers),
             outliers,
             flagged_changesets,
         },

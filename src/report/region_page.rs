@@ -14,7 +14,7 @@ use super::text::{
 };
 use super::{page, PageContext};
 use crate::model::IsoWeek;
-use crate::summary::{ChangesetRow, Outlier, RegionReport};
+use crate::summary::{ChangesetRow, Incident, Outlier, RegionReport};
 
 /// Mappers and changesets listed in an outlier row before the rest fold into "more".
 const LIST_INLINE: usize = 5;
@@ -185,7 +185,7 @@ fn header(out: &mut String, r: &RegionReport) {
          person.</p>\n\
          <nav class=\"toc\" aria-label=\"On this page\"><a href=\"#glance\">At a glance</a> \
          <a href=\"#before-you-act\">Before you act</a> <a href=\"#maps\">Maps</a> \
-         <a href=\"#cells\">Cells</a> <a href=\"#changesets-h\">Changesets</a> \
+         <a href=\"#incidents-h\">Incidents</a> <a href=\"#cells\">Cells</a> <a href=\"#changesets-h\">Changesets</a> \
          <a href=\"#trend\">Trend</a> <a href=\"#how-to-read\">How to read this</a></nav>\n\
          </div>\n</header>\n",
         name = escape_html(&s.name),
@@ -314,6 +314,56 @@ fn outlier_row(out: &mut String, o: &Outlier, ctx: &PageContext<'_>) {
         user_link(out, ctx, m, None)
     });
     out.push_str("</td></tr>\n");
+}
+
+fn incident_row(out: &mut String, i: &Incident, ctx: &PageContext<'_>) {
+    let [w, s, e, n] = i.bbox;
+    let _ = write!(
+        out,
+        "<tr><th scope=\"row\">{kind}</th>\
+         <td data-label=\"Place\"><span class=\"nowrap\">{lat:.4}, {lon:.4}</span>\
+         <span class=\"sub\">box {w:.4}, {s:.4} – {e:.4}, {n:.4}</span></td>\
+         <td class=\"num\" data-label=\"Cells\">{cells}</td>\
+         <td class=\"num\" data-label=\"Observed vs expected\"><strong>{observed}</strong> \
+         <span class=\"muted\">vs</span> {expected}</td>\
+         <td class=\"num inline\" data-label=\"q\">{q}</td><td data-label=\"Changesets\">",
+        kind = escape_html(&kind_label(&i.kind)),
+        lat = i.lat,
+        lon = i.lon,
+        cells = i.cells.len(),
+        observed = group_thousands(i.observed),
+        expected = format_mean(i.expected),
+        q = format_probability(i.q_value),
+    );
+    folded_list(out, &i.changesets, "changesets", |out, id| {
+        changeset_link(out, ctx, *id);
+    });
+    out.push_str("</td><td data-label=\"Mappers\">");
+    folded_list(out, &i.mappers, "mappers", |out, m| {
+        user_link(out, ctx, m, None)
+    });
+    out.push_str("</td></tr>\n");
+}
+
+fn incidents(out: &mut String, r: &RegionReport, ctx: &PageContext<'_>) {
+    if r.summary.incidents.is_empty() {
+        return;
+    }
+    out.push_str(
+        "<section id=\"incidents\" aria-labelledby=\"incidents-h\">\n<h2 id=\"incidents-h\">\
+         Incidents</h2>\n<p class=\"muted\">Neighbouring cells of one kind that share changesets, \
+         taken together; strongest evidence first. The box is west, south – east, north in \
+         degrees.</p>\n<div class=\"table-scroll\" tabindex=\"0\" role=\"region\" \
+         aria-labelledby=\"incidents-h\">\n<table class=\"data stack outliers\" id=\"incident-table\">\n\
+         <thead><tr><th scope=\"col\">What</th><th scope=\"col\">Place · box</th>\
+         <th scope=\"col\" class=\"num\">Cells</th><th scope=\"col\" class=\"num\">Observed vs expected</th>\
+         <th scope=\"col\" class=\"num\">q</th><th scope=\"col\">Changesets</th>\
+         <th scope=\"col\">Mappers</th></tr></thead>\n<tbody>\n",
+    );
+    for i in &r.summary.incidents {
+        incident_row(out, i, ctx);
+    }
+    out.push_str("</tbody>\n</table>\n</div>\n</section>\n");
 }
 
 fn outliers(out: &mut String, r: &RegionReport, ctx: &PageContext<'_>) {
@@ -619,6 +669,7 @@ pub(super) fn render(r: &RegionReport, ctx: &PageContext<'_>) -> String {
     glance(&mut out, r, ctx);
     page::cautions_full(&mut out);
     maps(&mut out, r);
+    incidents(&mut out, r, ctx);
     outliers(&mut out, r, ctx);
     changesets(&mut out, r, ctx);
     trend(&mut out, r);
