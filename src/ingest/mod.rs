@@ -152,7 +152,10 @@ pub fn sniff(path: &Path) -> Result<InputKind, IngestError> {
     (&mut r)
         .take(1 << 16)
         .read_to_end(&mut head)
-        .map_err(io_err(path))?;
+        .map_err(|e| IngestError::Format {
+            path: path.to_owned(),
+            message: format!("damaged or truncated compressed data near the start: {e}"),
+        })?;
     let fmt = |message: &str| IngestError::Format {
         path: path.to_owned(),
         message: message.to_owned(),

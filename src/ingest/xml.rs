@@ -442,6 +442,17 @@ fn changeset_attrs(e: &BytesStart<'_>, cs: &mut RawChangeset) -> Result<(), Stri
 }
 
 fn check_len(v: &str, what: &str) -> Result<(), String> {
+    // XML 1.0 allows no control characters but tab, line feed and carriage return; refusing them
+    // also keeps the store's tag packing (which uses U+001E and U+001F) unambiguous.
+    if let Some(c) = v
+        .chars()
+        .find(|&c| c < ' ' && !matches!(c, '\t' | '\n' | '\r'))
+    {
+        return Err(format!(
+            "{what} holds the control character U+{:04X}, which XML 1.0 does not allow",
+            u32::from(c)
+        ));
+    }
     if v.len() > MAX_TAG_BYTES {
         return Err(format!(
             "{what} is {} bytes long; at most {MAX_TAG_BYTES} are accepted",
