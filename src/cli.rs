@@ -7,11 +7,13 @@ use clap::{Args, Parser, Subcommand};
 
 use crate::demo::{self, DemoOptions};
 use crate::ingest::{self, IngestError, IngestSummary};
+use crate::measure::Measure;
 use crate::model::IsoWeek;
 use crate::pipeline::{self, PipelineError, ReportOptions};
 use crate::progress::Progress;
-use crate::render::Colormap;
+use crate::render::{Colormap, Style, StyleError};
 use crate::store::{Store, StoreError};
+use crate::tiles::{TileError, TileOptions, ZoomRange, DEFAULT_MAX_TILES};
 
 /// Exit codes (documented in README.md).
 pub mod exit {
@@ -70,6 +72,35 @@ pub enum Command {
         /// Weeks of data (the last one has the injected incidents).
         #[arg(long, default_value_t = 14)]
         weeks: u32,
+        /// Map style: a built-in name (default, dark, print) or a TOML file.
+        #[arg(long, default_value = "default")]
+        style: String,
+    },
+    /// Analyse a week and write an XYZ tile pyramid of one measure, with tiles.json, viewer.html and optionally an MBTiles file.
+    Tiles {
+        /// State database (only read).
+        #[arg(long)]
+        db: PathBuf,
+        /// Folder for {z}/{x}/{y}.png, tiles.json and viewer.html (its old zoom folders are replaced).
+        #[arg(long)]
+        out: PathBuf,
+        /// Zoom levels, e.g. 6-14 or 12.
+        #[arg(long, default_value = "6-14")]
+        zoom: ZoomRange,
+        /// What the cells are coloured by: edits, deletions, newcomers, score or ratio.
+        #[arg(long, default_value = "edits")]
+        measure: Measure,
+        /// Also write the tiles into this MBTiles (SQLite) file.
+        #[arg(long)]
+        mbtiles: Option<PathBuf>,
+        /// Absolute URL the pyramid folder will be served from, for tiles.json (default: its file:// URL).
+        #[arg(long)]
+        base_url: Option<String>,
+        /// Refuse pyramids that need more tiles than this.
+        #[arg(long, default_value_t = DEFAULT_MAX_TILES)]
+        max_tiles: u64,
+        #[command(flatten)]
+        settings: ReportArgs,
     },
 }
 
@@ -98,9 +129,12 @@ pub struct ReportArgs {
     /// Changesets scoring at or above this are flagged.
     #[arg(long, default_value_t = 0.5)]
     pub flag_threshold: f64,
-    /// Colour map: viridis, cividis or magma.
-    #[arg(long, default_value = "viridis")]
-    pub colormap: Colormap,
+    /// Map style: a built-in name (default, dark, print) or a TOML file.
+    #[arg(long, default_value = "default")]
+    pub style: String,
+    /// Colour map for counts and scores, overriding the style's: viridis, cividis or magma.
+    #[arg(long)]
+    pub colormap: Option<Colormap>,
     /// Text for the report's "generated at" line (default: now, UTC).
     #[arg(long)]
     pub generated_at: Option<String>,
@@ -118,8 +152,25 @@ fn parse_resolution(s: &str) -> Result<h3o::Resolution, String> {
     h3o::Resolution::try_from(n).map_err(|e| e.to_string())
 }
 
+/// Loads `--style` and applies `--colormap` over it.
+fn load_style(name: &str, colormap: Option<Colormap>) -> Result<Style, Failure> {
+    let mut style = Style::load(name)?;
+    if let Some(c) = colormap {
+        if c.is_diverging() {
+            return Err(Failure {
+                message: format!(
+                    "--colormap {c}: a diverging map cannot colour counts; use viridis, cividis or magma"
+                ),
+                code: exit::BAD_INPUT,
+            });
+        }
+        style.maps.sequential = c;
+    }
+    Ok(style)
+}
+
 impl ReportArgs {
-    fn options(&self) -> ReportOptions {
+    fn options(&self) -> Result<ReportOptions, Failure> {
         let mut o = ReportOptions {
             week: self.week,
             regions: self.regions.clone(),
@@ -127,7 +178,7 @@ impl ReportArgs {
             resolution: self.resolution,
             baseline_weeks: self.baseline_weeks,
             flag_threshold: self.flag_threshold,
-            colormap: self.colormap,
+            style: load_style(&self.style, self.colormap)?,
             generated_at: self
                 .generated_at
                 .clone()
@@ -135,7 +186,7 @@ impl ReportArgs {
             ..ReportOptions::default()
         };
         o.detect.fdr = self.fdr;
-        o
+        Ok(o)
     }
 }
 
@@ -183,6 +234,28 @@ impl From<PipelineError> for Failure {
     }
 }
 
+impl From<StyleError> for Failure {
+    fn from(e: StyleError) -> Self {
+        Self {
+            message: e.to_string(),
+            code: exit::BAD_INPUT,
+        }
+    }
+}
+
+impl From<TileError> for Failure {
+    fn from(e: TileError) -> Self {
+        let code = match &e {
+            TileError::TooMany { .. } | TileError::BaseUrl { .. } => exit::BAD_INPUT,
+            _ => exit::OUTPUT,
+        };
+        Self {
+            message: e.to_string(),
+            code,
+        }
+    }
+}
+
 fn ingest_line(s: &IngestSummary) -> String {
     #[allow(clippy::cast_precision_loss, reason = "display only")]
     let rate = s.elements as f64 / (s.elapsed_ms.max(1) as f64 / 1000.0);
@@ -220,6 +293,35 @@ fn report(db: &Path, out: &Path, opts: &ReportOptions, progress: &Progress) -> R
     Ok(())
 }
 
+fn tiles(
+    db: &Path,
+    out: &Path,
+    opts: &ReportOptions,
+    tile_opts: &TileOptions,
+    progress: &Progress,
+) -> Result<(), Failure> {
+    let store = Store::open(db)?;
+    let analysis = pipeline::analyse(&store, opts, progress)?;
+    let s = crate::tiles::write_tiles(&analysis, opts, tile_opts, out, progress)?;
+    let per_zoom: Vec<String> = s
+        .per_zoom
+        .iter()
+        .map(|(z, n)| format!("z{z}: {n}"))
+        .collect();
+    progress.note(&format!(
+        "{} tiles of {} written ({}; {} blank tiles skipped); open {}",
+        s.written,
+        tile_opts.measure,
+        per_zoom.join(", "),
+        s.blank,
+        out.join("viewer.html").display()
+    ));
+    if let Some(mb) = &tile_opts.mbtiles {
+        progress.note(&format!("MBTiles written to {}", mb.display()));
+    }
+    Ok(())
+}
+
 /// Runs a parsed command line.
 ///
 /// # Errors
@@ -233,8 +335,33 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
             progress.note(&ingest_line(&s));
             Ok(())
         }
-        Command::Report { db, out, settings } => report(&db, &out, &settings.options(), &progress),
-        Command::Demo { out, seed, weeks } => {
+        Command::Report { db, out, settings } => report(&db, &out, &settings.options()?, &progress),
+        Command::Tiles {
+            db,
+            out,
+            zoom,
+            measure,
+            mbtiles,
+            base_url,
+            max_tiles,
+            settings,
+        } => {
+            let opts = TileOptions {
+                zooms: zoom,
+                measure,
+                mbtiles,
+                base_url,
+                max_tiles,
+            };
+            tiles(&db, &out, &settings.options()?, &opts, &progress)
+        }
+        Command::Demo {
+            out,
+            seed,
+            weeks,
+            style,
+        } => {
+            let style = load_style(&style, None)?;
             let input = out.join("input");
             let files = demo::generate(
                 &input,
@@ -261,9 +388,17 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 land: crate::land::LandSource::File(files.land.clone()),
                 // Fixed so the demo's report is the same on every run.
                 generated_at: "demo run (fictional data)".to_owned(),
+                style,
                 ..ReportOptions::default()
             };
-            report(&db, &out.join("report"), &opts, &progress)
+            let report_dir = out.join("report");
+            report(&db, &report_dir, &opts, &progress)?;
+            // The town scale of the demo: zoom 9 shows the whole coast, 14 single streets.
+            let tile_opts = TileOptions {
+                zooms: ZoomRange { min: 9, max: 14 },
+                ..TileOptions::default()
+            };
+            tiles(&db, &report_dir.join("tiles"), &opts, &tile_opts, &progress)
         }
     }
 }

@@ -5,7 +5,7 @@
 use h3o::CellIndex;
 
 use crate::baseline::{benjamini_hochberg, fit_dispersion, fit_prior, Predictive, PriorBounds};
-use crate::cells::{CellWeeks, Kind};
+use crate::cells::{CellWeek, CellWeeks, Kind};
 
 /// Detection settings.
 #[derive(Debug, Clone, Copy)]
@@ -69,6 +69,38 @@ pub struct Test {
     pub outlier: bool,
 }
 
+/// A cell's predictive distribution of `count` for the report week: a Gamma prior fitted on
+/// its H3 grid disk's history weeks, updated by its own history weeks, with the
+/// neighbourhood's week-to-week dispersion (see [`crate::baseline`]).
+#[must_use]
+pub fn predict(
+    cw: &CellWeeks,
+    cell: CellIndex,
+    count: &dyn Fn(&CellWeek) -> u64,
+    cfg: &DetectConfig,
+) -> Predictive {
+    let report = cw.weeks - 1;
+    let own = cw.get(cell);
+    let history: Vec<u64> = (0..report)
+        .map(|w| own.map_or(0, |v| count(&v[w])))
+        .collect();
+    let mut samples = Vec::new();
+    let mut active: Vec<Vec<u64>> = Vec::new();
+    for n in neighbourhood(cell, cfg.neighbourhood_k) {
+        let nv = cw.get(n);
+        let h: Vec<u64> = (0..report)
+            .map(|w| nv.map_or(0, |v| count(&v[w])))
+            .collect();
+        samples.extend_from_slice(&h);
+        if nv.is_some() {
+            active.push(h);
+        }
+    }
+    let prior = fit_prior(&samples, &cfg.prior);
+    let k = fit_dispersion(active.iter().map(Vec::as_slice));
+    Predictive::from_history(prior, &history, k)
+}
+
 /// Tests every cell of `cells_in_region` for every kind. Offshore fabrication is skipped when
 /// `offshore` is false (no land layer). Score hotspots are dropped where another kind already
 /// flags the cell, since they would repeat the same evidence.
@@ -89,25 +121,8 @@ pub fn detect(
             .iter()
             .map(|&cell| {
                 let own = cw.get(cell);
-                let history: Vec<u64> = (0..report)
-                    .map(|w| own.map_or(0, |v| v[w].value(kind)))
-                    .collect();
                 let own_history = own.is_some_and(|v| v[..report].iter().any(|x| x.edits > 0));
-                let mut samples = Vec::new();
-                let mut active: Vec<Vec<u64>> = Vec::new();
-                for n in neighbourhood(cell, cfg.neighbourhood_k) {
-                    let nv = cw.get(n);
-                    let h: Vec<u64> = (0..report)
-                        .map(|w| nv.map_or(0, |v| v[w].value(kind)))
-                        .collect();
-                    samples.extend_from_slice(&h);
-                    if nv.is_some() {
-                        active.push(h);
-                    }
-                }
-                let prior = fit_prior(&samples, &cfg.prior);
-                let k = fit_dispersion(active.iter().map(Vec::as_slice));
-                let pred = Predictive::from_history(prior, &history, k);
+                let pred = predict(cw, cell, &|c| c.value(kind), cfg);
                 let observed = own.map_or(0, |v| v[report].value(kind));
                 Test {
                     kind,

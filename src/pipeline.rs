@@ -9,15 +9,16 @@ use std::path::{Path, PathBuf};
 
 use h3o::{CellIndex, LatLng, Resolution};
 
-use crate::cells::{aggregate, CellWeeks, Kind};
+use crate::cells::{aggregate, CellWeeks};
 use crate::detect::{detect, DetectConfig};
 use crate::features::{changeset_features, edit_facts, FeatureConfig, MapperHistory};
 use crate::land::{Land, LandError, LandSource};
 use crate::locate::{count_placement, load_edits};
+use crate::measure::{heat_cells, Measure};
 use crate::model::{IsoWeek, Op};
 use crate::progress::Progress;
 use crate::regions::{Region, RegionError};
-use crate::render::{Colormap, HeatCell, HeatMap, RenderError, Scale};
+use crate::render::{HeatMap, RenderError, Style};
 use crate::report::{PageContext, ReportError};
 use crate::score::{score, Scored};
 use crate::store::{Store, StoreError};
@@ -57,7 +58,8 @@ pub struct ReportOptions {
     pub flag_threshold: f64,
     pub features: FeatureConfig,
     pub detect: DetectConfig,
-    pub colormap: Colormap,
+    /// Map style of the heat images (colour maps, backdrop, fonts; whether roads are drawn).
+    pub style: Style,
     /// Shown as the report's "generated at" (injected so output is reproducible).
     pub generated_at: String,
     pub changeset_url: String,
@@ -75,7 +77,7 @@ impl Default for ReportOptions {
             flag_threshold: 0.5,
             features: FeatureConfig::default(),
             detect: DetectConfig::default(),
-            colormap: Colormap::Viridis,
+            style: Style::default(),
             generated_at: String::new(),
             changeset_url: "https://www.openstreetmap.org/changeset/".to_owned(),
             user_url: "https://www.openstreetmap.org/user/".to_owned(),
@@ -97,6 +99,8 @@ pub struct Analysis {
     pub regions: Vec<RegionAnalysis>,
     pub cell_weeks: CellWeeks,
     pub land: Land,
+    /// Main roads near the regions (lon/lat polylines), when the style draws them.
+    pub roads: Vec<Vec<(f64, f64)>>,
 }
 
 /// The default week: the week of the last edit if the data reaches its Sunday, else the one
@@ -494,6 +498,22 @@ pub fn analyse(
         bar.inc(1);
     }
     bar.finish_and_clear();
+    let roads = match bbox_of(out_regions.iter().flat_map(|r| {
+        let (a, b) = (r.extent.min(), r.extent.max());
+        [(a.x, a.y), (b.x, b.y)]
+    })) {
+        Some(area) if opts.style.roads.show => {
+            let found = crate::roads::main_roads(store, area)?;
+            if found.truncated {
+                progress.note(&format!(
+                    "main roads: only the first {} nodes were read; the rest are not drawn",
+                    crate::roads::MAX_ROAD_NODES
+                ));
+            }
+            found.lines
+        }
+        _ => Vec::new(),
+    };
     let summary = Summary {
         schema: SCHEMA_VERSION,
         generator: format!("hexvigil {}", env!("CARGO_PKG_VERSION")),
@@ -510,6 +530,7 @@ pub fn analyse(
         regions: out_regions,
         cell_weeks: cw,
         land,
+        roads,
     })
 }
 
@@ -522,8 +543,8 @@ pub fn write(
     out: &Path,
     opts: &ReportOptions,
 ) -> Result<(), PipelineError> {
-    let report_idx = analysis.cell_weeks.weeks - 1;
-    for r in &mut analysis.regions {
+    let mut all_images = Vec::with_capacity(analysis.regions.len());
+    for r in &analysis.regions {
         let dir = out.join(&r.report.summary.slug);
         std::fs::create_dir_all(&dir).map_err(|source| ReportError::Io {
             path: dir.clone(),
@@ -538,59 +559,58 @@ pub fn write(
             .collect();
         let name = &r.report.summary.name;
         let week = &r.report.summary.week;
-        let images = [
-            ("heat.png", "edits", "edits per cell in the week", None),
-            (
-                "heat-deletions.png",
-                "deletions",
-                "deletions per cell in the week",
-                Some(Kind::DeletionBurst),
-            ),
-        ];
-        r.report.images.clear();
-        for (file, what, legend, kind) in images {
-            let cells: Vec<HeatCell> = r
-                .cells
-                .iter()
-                .filter_map(|&c| {
-                    let cw = &analysis.cell_weeks.get(c)?[report_idx];
-                    #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
-                    let value = kind.map_or(cw.edits, |k| cw.value(k)) as f64;
-                    Some(HeatCell { cell: c, value })
-                })
-                .collect();
-            #[allow(
-                clippy::cast_possible_truncation,
-                clippy::cast_sign_loss,
-                reason = "sums of counts"
-            )]
-            let total =
-                crate::report::group_thousands(cells.iter().map(|c| c.value).sum::<f64>() as u64);
+        let mut images = Vec::new();
+        for measure in Measure::ALL {
+            let cells = heat_cells(analysis, &r.cells, measure, &opts.detect);
+            let what = measure.title();
+            let middle = if measure.is_count() {
+                #[allow(
+                    clippy::cast_possible_truncation,
+                    clippy::cast_sign_loss,
+                    reason = "sums of counts"
+                )]
+                let total = cells.iter().map(|c| c.value).sum::<f64>() as u64;
+                format!("{} {what}", crate::report::group_thousands(total))
+            } else if measure == Measure::Ratio {
+                format!(
+                    "expectation from {} weeks of history",
+                    analysis.summary.baseline_weeks
+                )
+            } else {
+                "each cell's highest-scoring changeset".to_owned()
+            };
             let title = format!("{name}: {what}, {week}");
             let subtitle = format!(
-                "H3 resolution {} · {} {what} · outlier cells outlined",
-                analysis.summary.resolution, total
+                "H3 resolution {} · {middle} · outlier cells outlined",
+                analysis.summary.resolution
             );
             let map = HeatMap {
                 title: &title,
                 subtitle: &subtitle,
-                legend_label: legend,
+                legend_label: measure.legend(),
                 cells: &cells,
                 outlined: &outlined,
                 land: &analysis.land,
+                roads: &analysis.roads,
                 extent: r.extent,
-                colormap: opts.colormap,
-                scale: Scale::Log,
-                value_max: None,
+                style: &opts.style,
+                colormap: measure.colormap(&opts.style),
+                scale: measure.scale(),
+                value_max: measure.value_max(),
                 width: 1200,
             };
             let pix = crate::render::render_heat(&map)?;
+            let file = measure.file_name();
             crate::render::save_png(&pix, &dir.join(file))?;
-            r.report.images.push((
+            images.push((
                 file.to_owned(),
-                format!("{what} per H3 cell in {week}; outlier cells outlined"),
+                format!("{}; outlier cells outlined", measure.legend()),
             ));
         }
+        all_images.push(images);
+    }
+    for (r, images) in analysis.regions.iter_mut().zip(all_images) {
+        r.report.images = images;
     }
     let reports: Vec<RegionReport> = analysis.regions.iter().map(|r| r.report.clone()).collect();
     let ctx = PageContext {

@@ -18,6 +18,7 @@
 mod colormaps;
 mod draw;
 mod legend;
+mod style;
 mod text;
 
 use std::fmt;
@@ -25,6 +26,8 @@ use std::path::{Path, PathBuf};
 use std::str::FromStr;
 
 use tiny_skia::Pixmap;
+
+pub use style::{Cells, Colours, Maps, Outliers, Rgb, Roads, Style, StyleError, Text};
 
 /// Largest image side in pixels the renderer accepts.
 pub const MAX_SIDE: u32 = 8192;
@@ -35,26 +38,11 @@ pub const MAX_MAP_ASPECT: f64 = 1.4;
 /// Latitude limit of Web Mercator (degrees): the square world of the slippy-map convention.
 pub const MERCATOR_MAX_LAT: f64 = 85.051_128_779_806_6;
 
-/// Page colour around the map (warm off-white).
-pub const PAPER_RGB: [u8; 3] = [0xFA, 0xF9, 0xF6];
-/// Water colour (light blue-grey).
-pub const WATER_RGB: [u8; 3] = [0xD5, 0xDF, 0xE6];
-/// Land colour (light warm grey).
-pub const LAND_RGB: [u8; 3] = [0xEC, 0xE8, 0xE0];
-/// Map background when no land layer is given: neutral, so it claims neither land nor water.
-pub const PLAIN_RGB: [u8; 3] = [0xEC, 0xEC, 0xEA];
-/// Opacity of cell fills over the backdrop.
-pub const CELL_OPACITY: f32 = 0.8;
-/// Core stroke of an outlier cell's outline: near-black, drawn over a white halo
-/// ([`OUTLIER_HALO_RGB`]) so it reads over every colour map, over land and over water, and does
-/// not depend on telling hues apart.
-pub const OUTLIER_RGB: [u8; 3] = [0x14, 0x14, 0x14];
-/// Halo under the outlier outline.
-pub const OUTLIER_HALO_RGB: [u8; 3] = [0xFF, 0xFF, 0xFF];
 /// Attribution line printed at the bottom right.
 pub const ATTRIBUTION: &str = "© OpenStreetMap contributors";
 
-/// A perceptually uniform, colour-blind-safe published colour map.
+/// A published colour map: three perceptually uniform, colour-blind-safe sequential maps and one
+/// colour-blind-safe diverging map.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
 pub enum Colormap {
     /// viridis (matplotlib's default map).
@@ -64,20 +52,33 @@ pub enum Colormap {
     Cividis,
     /// magma (black through red to light yellow).
     Magma,
+    /// Diverging: ColorBrewer's RdBu (Cynthia Brewer, colorbrewer2.org, marked colour-blind
+    /// safe) reversed, so blue is low, near-white the middle and red high; matplotlib's
+    /// `RdBu_r` table.
+    RdBuR,
 }
 
 impl Colormap {
-    /// Every colour map, in a stable order.
+    /// The sequential colour maps (for counts and scores), in a stable order.
     pub const ALL: [Self; 3] = [Self::Viridis, Self::Cividis, Self::Magma];
+    /// The diverging colour maps (for observed versus expected).
+    pub const DIVERGING: [Self; 1] = [Self::RdBuR];
 
-    /// The lowercase name used on the command line.
+    /// The lowercase name used on the command line and in style files.
     #[must_use]
     pub const fn name(self) -> &'static str {
         match self {
             Self::Viridis => "viridis",
             Self::Cividis => "cividis",
             Self::Magma => "magma",
+            Self::RdBuR => "rdbu_r",
         }
+    }
+
+    /// Whether the map diverges from a neutral middle.
+    #[must_use]
+    pub const fn is_diverging(self) -> bool {
+        matches!(self, Self::RdBuR)
     }
 
     /// The published 256-entry table, channels in 0..=1, low to high.
@@ -87,6 +88,7 @@ impl Colormap {
             Self::Viridis => &colormaps::VIRIDIS,
             Self::Cividis => &colormaps::CIVIDIS,
             Self::Magma => &colormaps::MAGMA,
+            Self::RdBuR => &colormaps::RDBU_R,
         }
     }
 
@@ -120,11 +122,12 @@ impl FromStr for Colormap {
         let wanted = s.trim();
         Self::ALL
             .into_iter()
+            .chain(Self::DIVERGING)
             .find(|c| c.name().eq_ignore_ascii_case(wanted))
             .ok_or_else(|| ParseNameError {
                 kind: "colour map",
                 given: s.to_owned(),
-                expected: "viridis, cividis, magma",
+                expected: "viridis, cividis, magma, rdbu_r",
             })
     }
 }
@@ -137,6 +140,9 @@ pub enum Scale {
     /// `ln(1 + v)`, for counts whose busiest cells are orders of magnitude above the rest.
     #[default]
     Log,
+    /// A ratio on a logarithmic scale symmetric around 1 (for a diverging colour map): 1 at the
+    /// middle, the scale maximum at the high end and its reciprocal at the low end.
+    Ratio,
 }
 
 impl Scale {
@@ -146,11 +152,13 @@ impl Scale {
         match self {
             Self::Linear => "linear",
             Self::Log => "log",
+            Self::Ratio => "ratio",
         }
     }
 
-    /// Position of `value` on a colour scale running from 0 to `max`, clamped to 0..=1; 0 when
-    /// `max` is not positive or either input is NaN.
+    /// Position of `value` on a colour scale running from 0 (ratio: `1 / max`) to `max`,
+    /// clamped to 0..=1; 0 when `max` is not positive (ratio: not above 1), `value` is not
+    /// positive, or either is NaN.
     #[must_use]
     pub fn position(self, value: f64, max: f64) -> f64 {
         if max.is_nan() || value.is_nan() || max <= 0.0 || value <= 0.0 {
@@ -159,6 +167,8 @@ impl Scale {
         let t = match self {
             Self::Linear => value / max,
             Self::Log => value.ln_1p() / max.ln_1p(),
+            Self::Ratio if max > 1.0 => 0.5 + 0.5 * value.ln() / max.ln(),
+            Self::Ratio => return 0.0,
         };
         if t.is_nan() {
             0.0
@@ -179,13 +189,13 @@ impl FromStr for Scale {
 
     fn from_str(s: &str) -> Result<Self, Self::Err> {
         let wanted = s.trim();
-        [Self::Linear, Self::Log]
+        [Self::Linear, Self::Log, Self::Ratio]
             .into_iter()
             .find(|c| c.name().eq_ignore_ascii_case(wanted))
             .ok_or_else(|| ParseNameError {
                 kind: "scale",
                 given: s.to_owned(),
-                expected: "linear, log",
+                expected: "linear, log, ratio",
             })
     }
 }
@@ -222,9 +232,14 @@ pub struct HeatMap<'a> {
     pub outlined: &'a [h3o::CellIndex],
     /// Land polygons; an empty layer gives a plain background.
     pub land: &'a crate::land::Land,
+    /// Context lines (lon/lat polylines, e.g. main roads) drawn faintly under the cells when
+    /// the style shows roads.
+    pub roads: &'a [Vec<(f64, f64)>],
     /// Lon/lat area to show (usually the region's bounding box).
     pub extent: geo::Rect<f64>,
-    /// Colour map for the cells.
+    /// Colours, strokes, fonts and sizes.
+    pub style: &'a Style,
+    /// Colour map for the cells (usually the style's sequential or diverging map).
     pub colormap: Colormap,
     /// Value-to-colour scale.
     pub scale: Scale,
@@ -285,9 +300,6 @@ pub enum RenderError {
         /// I/O error.
         source: std::io::Error,
     },
-    /// The embedded font could not be parsed.
-    #[error("embedded font is unreadable: {0}")]
-    Font(#[from] ab_glyph::InvalidFont),
 }
 
 /// Normalised Web Mercator x of a longitude: 0 at 180° W, 1 at 180° E. Longitudes beyond ±180°
@@ -491,20 +503,21 @@ impl Layout {
 ///
 /// # Errors
 /// [`RenderError::TooNarrow`], [`RenderError::TooLarge`] or [`RenderError::Extent`] for sizes
-/// and areas the renderer refuses; [`RenderError::Font`] if the embedded font is broken.
+/// and areas the renderer refuses.
 pub fn render_heat(map: &HeatMap<'_>) -> Result<Pixmap, RenderError> {
     let layout = Layout::new(map.extent, map.width)?;
-    let fonts = text::Fonts::load()?;
+    let fonts = text::Fonts::of(map.style);
     let mut pixmap = Pixmap::new(layout.width, layout.height).ok_or(RenderError::TooLarge {
         width: u64::from(layout.width),
         height: u64::from(layout.height),
         max: MAX_SIDE,
     })?;
-    pixmap.fill(draw::color(PAPER_RGB, 1.0));
+    pixmap.fill(draw::color(map.style.colours.paper.0, 1.0));
 
     let ticks = legend::Ticks::new(map.scale, map.cells, map.value_max);
-    let mut canvas = draw::MapCanvas::new(&mut pixmap, &layout)?;
+    let mut canvas = draw::MapCanvas::new(&mut pixmap, &layout, map.style)?;
     canvas.backdrop(map.land);
+    canvas.roads(map.roads);
     canvas.cells(map.cells, map.colormap, map.scale, ticks.max);
     canvas.outlines(map.outlined);
     canvas.frame();
@@ -512,6 +525,7 @@ pub fn render_heat(map: &HeatMap<'_>) -> Result<Pixmap, RenderError> {
     let page = legend::Page {
         layout: &layout,
         fonts: &fonts,
+        style: map.style,
     };
     page.header(&mut pixmap, map.title, map.subtitle);
     page.colour_legend(
@@ -543,6 +557,22 @@ impl HeatMap<'_> {
 /// # Errors
 /// [`RenderError::Png`] when encoding fails, [`RenderError::Io`] when writing fails.
 pub fn save_png(pixmap: &Pixmap, path: &Path) -> Result<(), RenderError> {
+    let encoded = encode_png(pixmap).map_err(|source| RenderError::Png {
+        path: path.to_owned(),
+        source,
+    })?;
+    std::fs::write(path, encoded).map_err(|source| RenderError::Io {
+        path: path.to_owned(),
+        source,
+    })
+}
+
+/// Encodes a pixmap as PNG bytes: RGB when every pixel is opaque, RGBA otherwise (colours
+/// un-premultiplied).
+///
+/// # Errors
+/// When the encoder fails.
+pub fn encode_png(pixmap: &Pixmap) -> Result<Vec<u8>, image::ImageError> {
     use image::ImageEncoder as _;
 
     let opaque = pixmap.pixels().iter().all(|p| p.alpha() == u8::MAX);
@@ -561,16 +591,133 @@ pub fn save_png(pixmap: &Pixmap, path: &Path) -> Result<(), RenderError> {
         image::ExtendedColorType::Rgba8
     };
     let mut encoded = Vec::new();
-    image::codecs::png::PngEncoder::new(&mut encoded)
-        .write_image(&raw, pixmap.width(), pixmap.height(), colour)
-        .map_err(|source| RenderError::Png {
-            path: path.to_owned(),
-            source,
-        })?;
-    std::fs::write(path, encoded).map_err(|source| RenderError::Io {
-        path: path.to_owned(),
-        source,
-    })
+    image::codecs::png::PngEncoder::new(&mut encoded).write_image(
+        &raw,
+        pixmap.width(),
+        pixmap.height(),
+        colour,
+    )?;
+    Ok(encoded)
+}
+
+/// Side of an XYZ tile in pixels.
+pub const TILE_SIZE: u32 = 256;
+/// Type scale used for strokes on tiles (the thinnest the heat images use).
+const TILE_UNIT: f64 = metrics::MIN_UNIT;
+/// Margin around a tile, in tile pixels, within which cells still touch it: strokes and
+/// anti-aliasing reach this far past a cell's edge.
+pub const TILE_MARGIN_PX: f64 = draw::CLIP_PAD;
+
+/// What every tile of a pyramid draws: one colour scale for all tiles, so they compare.
+pub struct TileLayer<'a> {
+    /// Colours, strokes and opacity.
+    pub style: &'a Style,
+    /// Colour map for the cells.
+    pub colormap: Colormap,
+    /// Value-to-colour scale.
+    pub scale: Scale,
+    /// Top of the colour scale (from [`legend_breaks`] over all cells).
+    pub max: f64,
+}
+
+/// Draws one 256 px XYZ tile (`z`, `x`, `y` in the slippy-map convention) of `cells`, with the
+/// `outlined` cells' outlines, on a transparent background. `cells` need only hold those near
+/// the tile (the others are clipped away). Returns `None` when no pixel was drawn, so empty
+/// tiles are never written.
+///
+/// # Errors
+/// [`RenderError::TooLarge`] for a zoom beyond 30 or a tile outside the zoom's grid.
+pub fn render_tile(
+    (z, x, y): (u8, u32, u32),
+    cells: &[HeatCell],
+    outlined: &[h3o::CellIndex],
+    layer: &TileLayer<'_>,
+) -> Result<Option<Pixmap>, RenderError> {
+    let n = 1u64 << z.min(30);
+    if z > 30 || u64::from(x) >= n || u64::from(y) >= n {
+        return Err(RenderError::TooLarge {
+            width: u64::from(x),
+            height: u64::from(y),
+            max: u32::try_from(n).unwrap_or(u32::MAX),
+        });
+    }
+    let size = f64::from(TILE_SIZE);
+    #[allow(clippy::cast_precision_loss, reason = "n is at most 2^30")]
+    let n = n as f64;
+    let layout = Layout {
+        width: TILE_SIZE,
+        height: TILE_SIZE,
+        map: MapFrame {
+            left: 0.0,
+            top: 0.0,
+            width: size,
+            height: size,
+            origin_x: f64::from(x) / n,
+            origin_y: f64::from(y) / n,
+            px_per_unit: size * n,
+        },
+        unit: TILE_UNIT,
+    };
+    let mut pixmap = Pixmap::new(TILE_SIZE, TILE_SIZE).ok_or(RenderError::TooLarge {
+        width: u64::from(TILE_SIZE),
+        height: u64::from(TILE_SIZE),
+        max: MAX_SIDE,
+    })?;
+    let mut canvas = draw::MapCanvas::new(&mut pixmap, &layout, layer.style)?;
+    canvas.cells(cells, layer.colormap, layer.scale, layer.max);
+    canvas.outlines(outlined);
+    let drawn = pixmap.pixels().iter().any(|p| p.alpha() > 0);
+    Ok(drawn.then_some(pixmap))
+}
+
+/// The normalised Web Mercator boxes (`[x0, y0, x1, y1]`, 0..1, y southwards) a cell covers,
+/// by the same rule the renderer draws it: one box, or two for a cell crossing the antimeridian
+/// (one at each edge of the world, each cut at 0 or 1); none for a cell around a pole.
+/// Latitudes are clamped at ±[`MERCATOR_MAX_LAT`].
+#[must_use]
+pub fn cell_mercator_boxes(cell: h3o::CellIndex) -> Vec<[f64; 4]> {
+    draw::cell_rings(cell)
+        .iter()
+        .filter_map(|ring| {
+            let mut b = [
+                f64::INFINITY,
+                f64::INFINITY,
+                f64::NEG_INFINITY,
+                f64::NEG_INFINITY,
+            ];
+            for &(lon, lat) in ring {
+                let (x, y) = (mercator_x(lon), mercator_y(lat));
+                b = [b[0].min(x), b[1].min(y), b[2].max(x), b[3].max(y)];
+            }
+            let clipped = [b[0].max(0.0), b[1], b[2].min(1.0), b[3]];
+            (clipped[0] < clipped[2]).then_some(clipped)
+        })
+        .collect()
+}
+
+/// A colour scale's legend: the top of the scale and its marked values.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LegendBreaks {
+    /// Top of the colour scale (the value drawn in the colour map's last entry).
+    pub max: f64,
+    /// Marked values: value, position on the bar (0..=1) and printed label.
+    pub breaks: Vec<(f64, f64, String)>,
+}
+
+/// The legend of a colour scale over `cells`, exactly as a heat image draws it (see
+/// [`HeatMap::scale_max`] for how the top is chosen).
+#[must_use]
+pub fn legend_breaks(scale: Scale, cells: &[HeatCell], value_max: Option<f64>) -> LegendBreaks {
+    let ticks = legend::Ticks::new(scale, cells, value_max);
+    let breaks = ticks
+        .values
+        .iter()
+        .map(|&v| (v, scale.position(v, ticks.max), ticks.label(scale, v)))
+        .collect();
+    LegendBreaks {
+        max: ticks.max,
+        breaks,
+    }
 }
 
 /// A colour channel in 0..=1 as 8 bits (rounded, clamped).

@@ -288,3 +288,142 @@ fn report_opens_in_a_browser_from_disk() {
         .unwrap();
     assert!(dom.contains(&first_flagged.to_string()));
 }
+
+#[test]
+fn demo_writes_an_image_per_measure_and_a_tile_pyramid() {
+    let (dir, summary, _) = demo();
+    let report = dir.path().join("report");
+    for r in summary["regions"].as_array().unwrap() {
+        let d = report.join(r["slug"].as_str().unwrap());
+        let page = std::fs::read_to_string(d.join("index.html")).unwrap();
+        for f in [
+            "heat-deletions.png",
+            "heat-newcomers.png",
+            "heat-score.png",
+            "heat-ratio.png",
+        ] {
+            let img = image::open(d.join(f)).unwrap();
+            assert_eq!(img.width(), 1200, "{f}");
+            assert!(page.contains(f), "the region page shows {f}");
+        }
+    }
+    let tiles = report.join("tiles");
+    let tj = read_json(&tiles.join("tiles.json"));
+    assert_eq!(tj["tilejson"], "3.0.0");
+    assert_eq!(tj["minzoom"], 9);
+    assert_eq!(tj["maxzoom"], 14);
+    let z14 = std::fs::read_dir(tiles.join("14")).unwrap().count();
+    assert!(z14 > 5, "zoom 14 columns: {z14}");
+    assert!(tiles.join("viewer.html").is_file());
+}
+
+#[test]
+fn tiles_command_writes_a_pyramid_an_mbtiles_file_and_refuses_too_many_tiles() {
+    let (dir, _, _) = demo();
+    let db = dir.path().join("state.db");
+    let input = dir.path().join("input");
+    let out = tempfile::tempdir().unwrap();
+    let pyramid = out.path().join("ratio");
+    let mb = out.path().join("ratio.mbtiles");
+    let tiles = |extra: &[&str], dest: &Path| {
+        let mut c = bin();
+        c.args(["tiles", "--db"])
+            .arg(&db)
+            .arg("--out")
+            .arg(dest)
+            .arg("--land")
+            .arg(input.join("land.geojson"))
+            .arg("--regions")
+            .arg(input.join("regions.geojson"))
+            .args(extra);
+        c
+    };
+    run_ok(
+        tiles(
+            &[
+                "--zoom",
+                "10-13",
+                "--measure",
+                "ratio",
+                "--style",
+                "dark",
+                "--mbtiles",
+            ],
+            &pyramid,
+        )
+        .arg(&mb),
+    );
+    let tj = read_json(&pyramid.join("tiles.json"));
+    assert!(tj["name"]
+        .as_str()
+        .unwrap()
+        .contains("edits against expectation"));
+    let mut pngs = 0;
+    for z in 10..=13 {
+        for col in std::fs::read_dir(pyramid.join(z.to_string())).unwrap() {
+            pngs += std::fs::read_dir(col.unwrap().path()).unwrap().count();
+        }
+    }
+    let conn = rusqlite::Connection::open(&mb).unwrap();
+    let rows: i64 = conn
+        .query_row("SELECT COUNT(*) FROM tiles", [], |r| r.get(0))
+        .unwrap();
+    assert_eq!(rows as usize, pngs);
+
+    // Above the cap: a clear one-line error, exit code 2, nothing written.
+    let refused = out.path().join("refused");
+    let o = tiles(&["--zoom", "6-16", "--max-tiles", "20"], &refused)
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("more than 20 tiles") && err.contains("--zoom"),
+        "{err}"
+    );
+    assert_eq!(err.trim().lines().count(), 1, "{err}");
+    assert!(!refused.exists());
+
+    // A broken style file names itself and its line.
+    let style = out.path().join("broken.toml");
+    std::fs::write(&style, "name = \"x\"\n[colours\nland = 1\n").unwrap();
+    let o = tiles(&["--style", style.to_str().unwrap()], &refused)
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("broken.toml:2:"), "{err}");
+}
+
+#[test]
+fn tile_viewer_opens_in_a_browser_from_disk() {
+    let (dir, _, _) = demo();
+    let page = dir.path().join("report/tiles/viewer.html");
+    let profile = tempfile::tempdir().unwrap();
+    let out = Command::new("chromium")
+        .args([
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--disable-background-networking",
+            "--disable-component-update",
+            "--disable-sync",
+            "--no-first-run",
+            "--window-size=1280,900",
+            "--virtual-time-budget=2000",
+        ])
+        .arg(format!("--user-data-dir={}", profile.path().display()))
+        .arg("--dump-dom")
+        .arg(format!("file://{}", page.display()))
+        .output()
+        .expect("chromium is needed for this test: run scripts/setup-test-deps.sh");
+    let dom = String::from_utf8_lossy(&out.stdout);
+    // The script ran (the content security policy let it) and placed tiles of the start view.
+    assert!(
+        dom.contains("data-ready=\"true\""),
+        "viewer script did not run"
+    );
+    assert!(dom.contains("class=\"hv-tile\""), "no tile image placed");
+    assert!(dom.contains("OpenStreetMap contributors"));
+    assert!(dom.contains("not verdicts"));
+}

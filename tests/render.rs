@@ -11,8 +11,14 @@ use hexvigil::land::Land;
 use hexvigil::model::Coord;
 use hexvigil::render::{
     mercator_x, mercator_y, render_heat, save_png, Colormap, HeatCell, HeatMap, Layout,
-    RenderError, Scale, CELL_OPACITY, LAND_RGB, MAX_SIDE, OUTLIER_RGB, PLAIN_RGB, WATER_RGB,
+    RenderError, Scale, Style, MAX_SIDE,
 };
+
+/// The default style, which every test image uses.
+fn style() -> &'static Style {
+    static STYLE: std::sync::OnceLock<Style> = std::sync::OnceLock::new();
+    STYLE.get_or_init(Style::default)
+}
 
 /// Per-channel tolerance for fills: 8-bit premultiplied blending rounds at each step.
 const FILL_TOLERANCE: i32 = 3;
@@ -74,7 +80,9 @@ fn heat<'a>(cells: &'a [HeatCell], outlined: &'a [CellIndex], land: &'a Land) ->
         cells,
         outlined,
         land,
+        roads: &[],
         extent: extent(),
+        style: style(),
         colormap: Colormap::Viridis,
         scale: Scale::Linear,
         value_max: None,
@@ -84,10 +92,21 @@ fn heat<'a>(cells: &'a [HeatCell], outlined: &'a [CellIndex], land: &'a Land) ->
 
 #[test]
 fn colormap_endpoints_and_midpoint() {
-    // Source: matplotlib `_cm_listed.py` tables (_viridis_data, _cividis_data, _magma_data),
-    // entries 0, 128 and 255; hex strings from matplotlib.colors.to_hex(colormaps[name](t)).
+    // Source: matplotlib `_cm_listed.py` tables (_viridis_data, _cividis_data, _magma_data)
+    // and the lookup table of colormaps["RdBu_r"], entries 0, 128 and 255; hex strings from
+    // matplotlib.colors.to_hex(colormaps[name](t)). The RdBu ends are ColorBrewer's own
+    // (#053061 and #67001f on colorbrewer2.org, 11-class RdBu).
     type Published = (Colormap, [[f64; 3]; 3], [&'static str; 3]);
-    let published: [Published; 3] = [
+    let published: [Published; 4] = [
+        (
+            Colormap::RdBuR,
+            [
+                [0.0196078431372549, 0.18823529411764706, 0.3803921568627451],
+                [0.9690888119953864, 0.9664744329104191, 0.9649365628604383],
+                [0.403921568627451, 0.0, 0.12156862745098039],
+            ],
+            ["#053061", "#f7f6f6", "#67001f"],
+        ),
         (
             Colormap::Viridis,
             [
@@ -134,6 +153,9 @@ fn colormap_and_scale_names_parse() {
     assert_eq!(" Magma ".parse::<Colormap>().unwrap(), Colormap::Magma);
     assert_eq!("cividis".parse::<Colormap>().unwrap(), Colormap::Cividis);
     assert!("jet".parse::<Colormap>().is_err());
+    assert_eq!("rdbu_r".parse::<Colormap>().unwrap(), Colormap::RdBuR);
+    assert!(Colormap::RdBuR.is_diverging() && !Colormap::Viridis.is_diverging());
+    assert_eq!("ratio".parse::<Scale>().unwrap(), Scale::Ratio);
     assert_eq!("log".parse::<Scale>().unwrap(), Scale::Log);
     assert!("sqrt".parse::<Scale>().is_err());
 }
@@ -147,6 +169,14 @@ fn log_scale_is_log1p() {
     assert!((Scale::Log.position(1.0, 1000.0) - want).abs() < 1e-12);
     assert_eq!(Scale::Linear.position(f64::NAN, 10.0), 0.0);
     assert_eq!(Scale::Linear.position(20.0, 10.0), 1.0);
+    // Common practice, no source: a ratio scale is symmetric in log space around 1.
+    assert!((Scale::Ratio.position(1.0, 8.0) - 0.5).abs() < 1e-12);
+    assert!((Scale::Ratio.position(8.0, 8.0) - 1.0).abs() < 1e-12);
+    assert!(Scale::Ratio.position(1.0 / 8.0, 8.0).abs() < 1e-12);
+    assert!(
+        (Scale::Ratio.position(2.0, 8.0) + Scale::Ratio.position(0.5, 8.0) - 1.0).abs() < 1e-12
+    );
+    assert_eq!(Scale::Ratio.position(4.0, 1.0), 0.0);
 }
 
 #[test]
@@ -209,8 +239,16 @@ fn cell_centres_have_the_colour_map_colour() {
         for c in &cells {
             let centre = LatLng::from(c.cell);
             let on_land = land.is_land(Coord::from_degrees(centre.lat(), centre.lng()).unwrap());
-            let backdrop = if on_land { LAND_RGB } else { WATER_RGB };
-            let want = over(Colormap::Viridis.rgb(c.value / top), CELL_OPACITY, backdrop);
+            let backdrop = if on_land {
+                style().colours.land.0
+            } else {
+                style().colours.water.0
+            };
+            let want = over(
+                Colormap::Viridis.rgb(c.value / top),
+                style().cells.opacity,
+                backdrop,
+            );
             let got = pixel_at(&img, layout.map.to_pixel(centre.lng(), centre.lat()));
             assert_close(
                 got,
@@ -246,7 +284,7 @@ fn outlier_boundary_has_the_outline_colour() {
         // The core stroke is 3 px wide at 1200 px, so it covers the pixel under the edge.
         assert_close(
             pixel_at(&img, mid),
-            OUTLIER_RGB,
+            style().outliers.colour.0,
             12,
             &format!("edge {i} midpoint"),
         );
@@ -271,7 +309,11 @@ fn pixels_away_from_cells_show_land_or_water() {
         (5.01, 43.318),
     ] {
         let on_land = land.is_land(Coord::from_degrees(lat, lon).unwrap());
-        let want = if on_land { LAND_RGB } else { WATER_RGB };
+        let want = if on_land {
+            style().colours.land.0
+        } else {
+            style().colours.water.0
+        };
         let got = pixel_at(&img, layout.map.to_pixel(lon, lat));
         assert_close(
             got,
@@ -287,7 +329,7 @@ fn pixels_away_from_cells_show_land_or_water() {
     let img = decode(&render_heat(&map).unwrap());
     for (lon, lat) in [(4.75, 43.50), (4.80, 43.30)] {
         let got = pixel_at(&img, layout.map.to_pixel(lon, lat));
-        assert_close(got, PLAIN_RGB, 1, "plain backdrop");
+        assert_close(got, style().colours.plain.0, 1, "plain backdrop");
     }
 }
 
@@ -332,7 +374,7 @@ fn empty_cell_list_renders_backdrop_and_legend() {
     let img = decode(&render_heat(&map).unwrap());
     let layout = Layout::new(map.extent, map.width).unwrap();
     let got = pixel_at(&img, layout.map.to_pixel(4.75, 43.50));
-    assert_close(got, LAND_RGB, 1, "land with no cells");
+    assert_close(got, style().colours.land.0, 1, "land with no cells");
 
     // The colour bar sits below the map: both ends of the colour map appear there.
     let below = (layout.map.top + layout.map.height) as u32;
@@ -368,7 +410,11 @@ fn antimeridian_cells_do_not_smear() {
         cell: straddler,
         value: 100.0,
     }];
-    let filled = over(Colormap::Viridis.rgb(1.0), CELL_OPACITY, PLAIN_RGB);
+    let filled = over(
+        Colormap::Viridis.rgb(1.0),
+        style().cells.opacity,
+        style().colours.plain.0,
+    );
     for (extent, inside_lon, far_lon) in [
         (Rect::new((179.0, -17.0), (180.0, -16.0)), 179.97, 179.3),
         (Rect::new((-180.0, -17.0), (-179.0, -16.0)), -179.97, -179.3),
@@ -381,8 +427,38 @@ fn antimeridian_cells_do_not_smear() {
         let near = pixel_at(&img, layout.map.to_pixel(inside_lon, -16.5));
         assert_close(near, filled, FILL_TOLERANCE, "cell at the map edge");
         let far = pixel_at(&img, layout.map.to_pixel(far_lon, -16.5));
-        assert_close(far, PLAIN_RGB, 1, "no smear across the map");
+        assert_close(far, style().colours.plain.0, 1, "no smear across the map");
     }
+}
+
+#[test]
+fn roads_are_drawn_under_the_cells_and_styles_change_the_look() {
+    let land = coast();
+    // A road across the mainland, away from any cell.
+    let roads = vec![vec![(4.72, 43.50), (4.90, 43.50)]];
+    // Wide enough that the pixel on the line is fully covered.
+    let mut wide = Style::default();
+    wide.roads.width = 6.0;
+    let mut map = heat(&[], &[], &land);
+    map.roads = &roads;
+    map.style = &wide;
+    let img = decode(&render_heat(&map).unwrap());
+    let layout = Layout::new(map.extent, map.width).unwrap();
+    let on_road = pixel_at(&img, layout.map.to_pixel(4.80, 43.50));
+    let r = &wide.roads;
+    let want = over(r.colour.0, r.opacity, wide.colours.land.0);
+    assert_close(on_road, want, 12, "road pixel");
+    let off_road = pixel_at(&img, layout.map.to_pixel(4.80, 43.47));
+    assert_close(off_road, style().colours.land.0, 1, "land beside the road");
+
+    // The dark style: its own land and paper colours, and no roads when a style hides them.
+    let mut dark = Style::load("dark").unwrap();
+    dark.roads.show = false;
+    map.style = &dark;
+    let img = decode(&render_heat(&map).unwrap());
+    let on_road = pixel_at(&img, layout.map.to_pixel(4.80, 43.50));
+    assert_close(on_road, dark.colours.land.0, 1, "dark land, roads hidden");
+    assert_close(img.get_pixel(2, 2).0, dark.colours.paper.0, 0, "dark paper");
 }
 
 #[test]

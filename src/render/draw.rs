@@ -6,21 +6,13 @@ use tiny_skia::{
     Color, FillRule, LineJoin, Mask, Paint, Path, PathBuilder, Pixmap, Rect, Stroke, Transform,
 };
 
-use super::{
-    Colormap, HeatCell, Layout, MapFrame, RenderError, Scale, CELL_OPACITY, LAND_RGB, MAX_SIDE,
-    OUTLIER_HALO_RGB, OUTLIER_RGB, PLAIN_RGB, WATER_RGB,
-};
+use super::{Colormap, HeatCell, Layout, MapFrame, RenderError, Scale, Style, MAX_SIDE};
 use crate::land::Land;
 
-/// Coastline stroke, a shade darker than the water.
-const COAST_RGB: [u8; 3] = [0xB4, 0xC2, 0xCC];
-/// Map frame stroke.
-const FRAME_RGB: [u8; 3] = [0x9A, 0xA0, 0xA6];
 /// Projected rings are clipped to the map box grown by this many pixels, so clip edges fall
-/// outside the visible map and far-away vertices never reach the rasteriser.
-const CLIP_PAD: f64 = 8.0;
-/// Cells smaller than this (pixels across) get no thin outline: it would hide their colour.
-const MIN_OUTLINED_CELL_PX: f64 = 7.0;
+/// outside the visible map and far-away vertices never reach the rasteriser. The tile writer
+/// gives each tile the cells within this margin, so strokes continue across tile edges.
+pub(super) const CLIP_PAD: f64 = 8.0;
 
 /// A tiny-skia colour from 8-bit RGB and an opacity (clamped to 0..=1).
 pub(super) fn color(rgb: [u8; 3], alpha: f32) -> Color {
@@ -91,6 +83,81 @@ fn clip_ring(ring: &[(f64, f64)], b: Bounds) -> Vec<(f64, f64)> {
     out
 }
 
+/// Appends an open polyline to a path builder (lines of fewer than 2 points are dropped).
+fn push_line(pb: &mut PathBuilder, line: &[(f64, f64)]) {
+    if line.len() < 2 {
+        return;
+    }
+    #[allow(
+        clippy::cast_possible_truncation,
+        reason = "pixel coordinates, already clipped near the image"
+    )]
+    let pt = |p: (f64, f64)| (p.0 as f32, p.1 as f32);
+    let mut points = line.iter().map(|&p| pt(p));
+    if let Some((x, y)) = points.next() {
+        pb.move_to(x, y);
+    }
+    for (x, y) in points {
+        pb.line_to(x, y);
+    }
+}
+
+/// Splits a polyline into the runs of segments that come near a box (Liang-Barsky style
+/// clipping of each segment), so a road far outside the view never reaches the rasteriser.
+fn clip_line(line: &[(f64, f64)], b: Bounds) -> Vec<Vec<(f64, f64)>> {
+    let mut runs: Vec<Vec<(f64, f64)>> = Vec::new();
+    let mut current: Vec<(f64, f64)> = Vec::new();
+    for w in line.windows(2) {
+        let (a, c) = (w[0], w[1]);
+        let (dx, dy) = (c.0 - a.0, c.1 - a.1);
+        let (mut t0, mut t1) = (0.0f64, 1.0f64);
+        let mut keep = true;
+        for (p, q) in [
+            (-dx, a.0 - b.x0),
+            (dx, b.x1 - a.0),
+            (-dy, a.1 - b.y0),
+            (dy, b.y1 - a.1),
+        ] {
+            if p == 0.0 {
+                if q < 0.0 {
+                    keep = false;
+                }
+            } else {
+                let r = q / p;
+                if p < 0.0 {
+                    t0 = t0.max(r);
+                } else {
+                    t1 = t1.min(r);
+                }
+            }
+        }
+        if !keep || t0 > t1 {
+            if current.len() >= 2 {
+                runs.push(std::mem::take(&mut current));
+            }
+            current.clear();
+            continue;
+        }
+        let start = (a.0 + t0 * dx, a.1 + t0 * dy);
+        let end = (a.0 + t1 * dx, a.1 + t1 * dy);
+        if current.last() != Some(&start) {
+            if current.len() >= 2 {
+                runs.push(std::mem::take(&mut current));
+            }
+            current.clear();
+            current.push(start);
+        }
+        current.push(end);
+        if t1 < 1.0 {
+            runs.push(std::mem::take(&mut current));
+        }
+    }
+    if current.len() >= 2 {
+        runs.push(current);
+    }
+    runs
+}
+
 /// Appends a closed ring to a path builder (rings of fewer than 3 points are dropped).
 fn push_ring(pb: &mut PathBuilder, ring: &[(f64, f64)]) {
     if ring.len() < 3 {
@@ -115,7 +182,7 @@ fn push_ring(pb: &mut PathBuilder, ring: &[(f64, f64)]) {
 /// edge longer than 180° of longitude), plus a copy shifted by 360° when the ring reaches past
 /// ±180°, so a cell on the antimeridian shows on both map edges. Empty for a cell around a pole,
 /// whose boundary winds once around the globe and has no finite Mercator shape.
-fn cell_rings(cell: h3o::CellIndex) -> Vec<Vec<(f64, f64)>> {
+pub(super) fn cell_rings(cell: h3o::CellIndex) -> Vec<Vec<(f64, f64)>> {
     let boundary = cell.boundary();
     let mut ring: Vec<(f64, f64)> = Vec::with_capacity(boundary.len());
     for ll in boundary.iter() {
@@ -163,11 +230,16 @@ pub(super) struct MapCanvas<'p> {
     unit: f64,
     mask: Mask,
     clip: Bounds,
+    style: &'p Style,
 }
 
 impl<'p> MapCanvas<'p> {
     /// Prepares drawing into the map box of `layout`.
-    pub(super) fn new(pixmap: &'p mut Pixmap, layout: &Layout) -> Result<Self, RenderError> {
+    pub(super) fn new(
+        pixmap: &'p mut Pixmap,
+        layout: &Layout,
+        style: &'p Style,
+    ) -> Result<Self, RenderError> {
         let frame = layout.map;
         let mut mask = Mask::new(pixmap.width(), pixmap.height()).ok_or(RenderError::TooLarge {
             width: u64::from(pixmap.width()),
@@ -194,6 +266,7 @@ impl<'p> MapCanvas<'p> {
             unit: layout.unit,
             mask,
             clip,
+            style,
         })
     }
 
@@ -239,10 +312,11 @@ impl<'p> MapCanvas<'p> {
         let Some(rect) = frame_rect(&self.frame) else {
             return;
         };
+        let colours = &self.style.colours;
         let base = if land.is_empty() {
-            PLAIN_RGB
+            colours.plain.0
         } else {
-            WATER_RGB
+            colours.water.0
         };
         self.pixmap
             .fill_rect(rect, &paint(base, 1.0), Transform::identity(), None);
@@ -253,8 +327,8 @@ impl<'p> MapCanvas<'p> {
         // projection at the map corners.
         let (west, north) = self.lon_lat_at(self.clip.x0, self.clip.y0);
         let (east, south) = self.lon_lat_at(self.clip.x1, self.clip.y1);
-        let land_paint = paint(LAND_RGB, 1.0);
-        let coast_paint = paint(COAST_RGB, 1.0);
+        let land_paint = paint(colours.land.0, 1.0);
+        let coast_paint = paint(colours.coast.0, 1.0);
         let coast_width = (0.9 * self.unit).max(0.6);
         for polygon in land.polygons() {
             let Some(r) = polygon.bounding_rect() else {
@@ -282,9 +356,32 @@ impl<'p> MapCanvas<'p> {
         (mx * 360.0 - 180.0, super::mercator_lat(my))
     }
 
-    /// Cell fills at [`CELL_OPACITY`] with a thin darker outline.
+    /// Context lines (roads): thin, faint, under the cells.
+    pub(super) fn roads(&mut self, roads: &[Vec<(f64, f64)>]) {
+        let style = &self.style.roads;
+        if !style.show || roads.is_empty() {
+            return;
+        }
+        let mut pb = PathBuilder::new();
+        for line in roads {
+            let projected: Vec<(f64, f64)> = line
+                .iter()
+                .map(|&(lon, lat)| self.frame.to_pixel(lon, lat))
+                .collect();
+            for run in clip_line(&projected, self.clip) {
+                push_line(&mut pb, &run);
+            }
+        }
+        if let Some(path) = pb.finish() {
+            let width = (style.width * self.unit).max(0.5);
+            self.stroke(&path, &paint(style.colour.0, style.opacity), width);
+        }
+    }
+
+    /// Cell fills at the style's opacity with a thin darker outline.
     pub(super) fn cells(&mut self, cells: &[HeatCell], colormap: Colormap, scale: Scale, max: f64) {
-        let thin = (0.7 * self.unit).max(0.5);
+        let look = self.style.cells.clone();
+        let thin = look.outline_width * self.unit;
         for c in cells {
             if c.value.is_nan() || c.value <= 0.0 {
                 continue;
@@ -294,15 +391,19 @@ impl<'p> MapCanvas<'p> {
             let Some(path) = self.path(rings.iter().map(Vec::as_slice)) else {
                 continue;
             };
-            self.fill(&path, &paint(rgb, CELL_OPACITY), FillRule::Winding);
+            self.fill(&path, &paint(rgb, look.opacity), FillRule::Winding);
             let b = path.bounds();
-            if f64::from(b.width().min(b.height())) >= MIN_OUTLINED_CELL_PX {
-                self.stroke(&path, &paint(darken(rgb), 0.9), thin);
+            if thin > 0.0 && f64::from(b.width().min(b.height())) >= look.min_outlined_px {
+                self.stroke(
+                    &path,
+                    &paint(darken(rgb, look.outline_darken), 0.9),
+                    thin.max(0.5),
+                );
             }
         }
     }
 
-    /// Outlier outlines: a white halo under a near-black core, on top of every fill.
+    /// Outlier outlines: a halo under a core stroke, on top of every fill.
     pub(super) fn outlines(&mut self, outlined: &[h3o::CellIndex]) {
         let paths: Vec<Path> = outlined
             .iter()
@@ -312,12 +413,14 @@ impl<'p> MapCanvas<'p> {
             })
             .collect();
         // All halos first, so a core is never covered by a neighbour's halo.
-        let (halo, core) = outline_widths(self.unit);
+        let (halo, core) = outline_widths(self.style, self.unit);
+        let look = &self.style.outliers;
+        let (halo_rgb, core_rgb) = (look.halo.0, look.colour.0);
         for path in &paths {
-            self.stroke(path, &paint(OUTLIER_HALO_RGB, 1.0), halo);
+            self.stroke(path, &paint(halo_rgb, 1.0), halo);
         }
         for path in &paths {
-            self.stroke(path, &paint(OUTLIER_RGB, 1.0), core);
+            self.stroke(path, &paint(core_rgb, 1.0), core);
         }
     }
 
@@ -339,7 +442,7 @@ impl<'p> MapCanvas<'p> {
             };
             self.pixmap.stroke_path(
                 &path,
-                &paint(FRAME_RGB, 1.0),
+                &paint(self.style.colours.frame.0, 1.0),
                 &stroke,
                 Transform::identity(),
                 None,
@@ -349,8 +452,11 @@ impl<'p> MapCanvas<'p> {
 }
 
 /// Halo and core stroke widths of an outlier outline at a type scale.
-pub(super) fn outline_widths(unit: f64) -> (f64, f64) {
-    ((6.5 * unit).max(4.0), (3.0 * unit).max(2.0))
+pub(super) fn outline_widths(style: &Style, unit: f64) -> (f64, f64) {
+    (
+        style.outliers.halo_width * unit,
+        style.outliers.width * unit,
+    )
 }
 
 /// The map box as a tiny-skia rectangle.
@@ -359,15 +465,16 @@ fn frame_rect(f: &MapFrame) -> Option<Rect> {
     Rect::from_xywh(f.left as f32, f.top as f32, f.width as f32, f.height as f32)
 }
 
-/// A colour a quarter darker, for thin cell outlines.
-fn darken(rgb: [u8; 3]) -> [u8; 3] {
+/// A darker shade (each channel times `factor`, clamped to 0..=1), for thin cell outlines.
+fn darken(rgb: [u8; 3], factor: f64) -> [u8; 3] {
+    let factor = factor.clamp(0.0, 1.0);
     rgb.map(|c| {
         #[allow(
             clippy::cast_possible_truncation,
             clippy::cast_sign_loss,
             reason = "0..=255 scaled down stays in range"
         )]
-        let v = (f64::from(c) * 0.72).round() as u8;
+        let v = (f64::from(c) * factor).round() as u8;
         v
     })
 }
@@ -393,6 +500,29 @@ mod tests {
         let clipped = clip_ring(&across, b);
         assert!(clipped.iter().all(|p| p.0 >= 0.0 && p.0 <= 10.0));
         assert!(clipped.contains(&(0.0, 5.0)));
+    }
+
+    #[test]
+    fn lines_are_cut_to_the_box() {
+        let b = Bounds {
+            x0: 0.0,
+            y0: 0.0,
+            x1: 10.0,
+            y1: 10.0,
+        };
+        // In, out and back in: two runs, each ending on the box edge.
+        let line = [(5.0, 5.0), (15.0, 5.0), (15.0, 8.0), (5.0, 8.0)];
+        let runs = clip_line(&line, b);
+        assert_eq!(
+            runs,
+            vec![vec![(5.0, 5.0), (10.0, 5.0)], vec![(10.0, 8.0), (5.0, 8.0)]]
+        );
+        assert!(clip_line(&[(20.0, 20.0), (30.0, 30.0)], b).is_empty());
+        // Crossing the box entirely: one run from edge to edge.
+        assert_eq!(
+            clip_line(&[(-5.0, 5.0), (15.0, 5.0)], b),
+            vec![vec![(0.0, 5.0), (10.0, 5.0)]]
+        );
     }
 
     #[test]

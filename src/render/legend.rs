@@ -4,18 +4,13 @@
 use tiny_skia::{FillRule, Paint, PathBuilder, Pixmap, Rect, Stroke, Transform};
 
 use super::draw::{outline_widths, paint};
-use super::text::{Fonts, Style};
-use super::{
-    Colormap, HeatCell, Layout, Scale, ATTRIBUTION, CELL_OPACITY, OUTLIER_HALO_RGB, OUTLIER_RGB,
-    PAPER_RGB,
-};
+use super::text::{Fonts, Style as TextStyle};
+use super::{Colormap, HeatCell, Layout, Scale, Style, ATTRIBUTION};
 
-/// Title ink.
-const INK_RGB: [u8; 3] = [0x1E, 0x23, 0x28];
-/// Secondary text (subtitle, labels).
-const INK_SOFT_RGB: [u8; 3] = [0x4A, 0x50, 0x57];
-/// Quiet text (attribution) and tick marks.
-const INK_QUIET_RGB: [u8; 3] = [0x6B, 0x71, 0x78];
+/// Largest ratio a ratio scale runs to (and its reciprocal at the low end): beyond 16 times
+/// (or a sixteenth of) the expectation the colour stays at the map's end, so one extreme cell
+/// does not wash out the rest.
+const MAX_RATIO: f64 = 16.0;
 /// Narrow no-break space between thousands: "1 842".
 const THOUSANDS: char = '\u{202F}';
 
@@ -24,7 +19,7 @@ const THOUSANDS: char = '\u{202F}';
 pub(super) struct Ticks {
     /// Value at the top of the colour scale.
     pub max: f64,
-    /// Marked values, ascending, starting at 0.
+    /// Marked values, ascending (from 0, or for a ratio scale from `1 / max`).
     pub values: Vec<f64>,
     /// Decimals to print.
     pub decimals: usize,
@@ -32,8 +27,12 @@ pub(super) struct Ticks {
 
 impl Ticks {
     /// Breaks for a scale: `value_max` when given (positive, finite), else the largest cell value
-    /// rounded up (linear: to a whole number of steps; log: to 1, 2 or 5 times a power of ten).
+    /// rounded up (linear: to a whole number of steps; log: to 1, 2 or 5 times a power of ten;
+    /// ratio: the largest ratio or reciprocal ratio, up to a power of two from 2 to 16).
     pub(super) fn new(scale: Scale, cells: &[HeatCell], value_max: Option<f64>) -> Self {
+        if scale == Scale::Ratio {
+            return Self::ratio(value_max, cells);
+        }
         let fixed = value_max.filter(|m| m.is_finite() && *m > 0.0);
         let wanted = fixed.unwrap_or_else(|| {
             cells
@@ -72,6 +71,45 @@ impl Ticks {
             max,
             values,
             decimals,
+        }
+    }
+
+    /// Powers of two from `1 / max` to `max`, at most seven of them.
+    fn ratio(value_max: Option<f64>, cells: &[HeatCell]) -> Self {
+        let wanted = value_max
+            .filter(|m| m.is_finite() && *m > 1.0)
+            .unwrap_or_else(|| {
+                cells
+                    .iter()
+                    .map(|c| c.value)
+                    .filter(|v| v.is_finite() && *v > 0.0)
+                    .map(|v| v.max(1.0 / v))
+                    .fold(2.0, f64::max)
+            })
+            .min(MAX_RATIO);
+        let exp = wanted.log2().ceil().max(1.0);
+        let max = exp.exp2();
+        // Symmetric around 1 and including it: steps of one or more doublings.
+        let step = (exp / 3.0).ceil().max(1.0);
+        #[allow(
+            clippy::cast_possible_truncation,
+            reason = "exp is at most log2(MAX_RATIO), a small whole number"
+        )]
+        let k = (exp / step).floor() as i32;
+        let values = (-k..=k).map(|i| (f64::from(i) * step).exp2()).collect();
+        Self {
+            max,
+            values,
+            decimals: 0,
+        }
+    }
+
+    /// The printed form of a marked value: ratios below 1 as fractions ("1/4").
+    pub(super) fn label(&self, scale: Scale, v: f64) -> String {
+        if scale == Scale::Ratio && v < 1.0 && v > 0.0 {
+            format!("1/{}", format_value(1.0 / v, 0))
+        } else {
+            format_value(v, self.decimals)
         }
     }
 
@@ -175,6 +213,7 @@ fn scale_bar_length(metres: f64) -> Option<(f64, String)> {
 pub(super) struct Page<'a> {
     pub layout: &'a Layout,
     pub fonts: &'a Fonts,
+    pub style: &'a Style,
 }
 
 impl Page<'_> {
@@ -199,8 +238,8 @@ impl Page<'_> {
         (self.layout.map.top + self.layout.map.height) as f32
     }
 
-    fn regular(&self, size: f64, rgb: [u8; 3]) -> Style<'_> {
-        Style {
+    fn regular(&self, size: f64, rgb: [u8; 3]) -> TextStyle<'_> {
+        TextStyle {
             font: &self.fonts.regular,
             size: self.px(size),
             rgb,
@@ -212,17 +251,17 @@ impl Page<'_> {
     pub(super) fn header(&self, pixmap: &mut Pixmap, title: &str, subtitle: &str) {
         let left = self.margin();
         let room = self.page_width() - 2.0 * left;
-        let mut style = Style {
+        let mut style = TextStyle {
             font: &self.fonts.bold,
-            size: self.px(35.0),
-            rgb: INK_RGB,
+            size: self.px(self.style.text.title_size),
+            rgb: self.style.colours.ink.0,
         };
         let natural = style.width(title);
         if natural > room {
             style.size *= (room / natural).max(0.75);
         }
         style.draw(pixmap, left, self.px(62.0), &style.fit(title, room));
-        let sub = self.regular(20.0, INK_SOFT_RGB);
+        let sub = self.regular(self.style.text.subtitle_size, self.style.colours.ink_soft.0);
         sub.draw(pixmap, left, self.px(95.0), &sub.fit(subtitle, room));
     }
 
@@ -243,9 +282,13 @@ impl Page<'_> {
         let bar_h = self.px(14.0).round().max(6.0);
         let bar_top = (top + self.px(52.0)).round();
 
-        let caption = self.regular(17.0, INK_SOFT_RGB);
+        let (ink_soft, ink_quiet) = (
+            self.style.colours.ink_soft.0,
+            self.style.colours.ink_quiet.0,
+        );
+        let caption = self.regular(self.style.text.label_size, ink_soft);
         let text = match scale {
-            Scale::Linear => label.to_owned(),
+            Scale::Linear | Scale::Ratio => label.to_owned(),
             Scale::Log => format!("{label} (log scale)"),
         };
         caption.draw(
@@ -276,12 +319,12 @@ impl Page<'_> {
             stroke_path(
                 pixmap,
                 &PathBuilder::from_rect(r),
-                &paint(INK_QUIET_RGB, 0.6),
+                &paint(ink_quiet, 0.6),
                 1.0,
             );
         }
 
-        let tick_style = self.regular(15.0, INK_SOFT_RGB);
+        let tick_style = self.regular(self.style.text.tick_size, ink_soft);
         let tick_len = self.px(5.0).max(3.0);
         let label_baseline = bar_top + bar_h + tick_len + self.px(17.0);
         let gap = self.px(8.0);
@@ -289,7 +332,7 @@ impl Page<'_> {
         for &v in &ticks.values {
             #[allow(clippy::cast_possible_truncation, reason = "pixel offsets")]
             let x = (left + (scale.position(v, ticks.max) as f32) * bar_w).round();
-            let text = format_value(v, ticks.decimals);
+            let text = ticks.label(scale, v);
             let w = tick_style.width(&text);
             // Labels are centred on their tick, kept inside the bar's span, never overlapping.
             let lx = (x - w / 2.0).clamp(left - w / 2.0, left + bar_w - w / 2.0);
@@ -300,7 +343,7 @@ impl Page<'_> {
             if let Some(r) =
                 Rect::from_xywh(x.min(left + bar_w - 1.0), bar_top + bar_h, 1.0, tick_len)
             {
-                pixmap.fill_rect(r, &paint(INK_QUIET_RGB, 1.0), Transform::identity(), None);
+                pixmap.fill_rect(r, &paint(ink_quiet, 1.0), Transform::identity(), None);
             }
             tick_style.draw(pixmap, lx, label_baseline, &text);
         }
@@ -332,19 +375,22 @@ impl Page<'_> {
         let Some(hex) = pb.finish() else {
             return;
         };
+        // A colour from the map's upper part: for a diverging map, clearly above the middle.
+        let sample = if colormap.is_diverging() { 0.85 } else { 0.55 };
         pixmap.fill_path(
             &hex,
-            &paint(colormap.rgb(0.55), CELL_OPACITY),
+            &paint(colormap.rgb(sample), self.style.cells.opacity),
             FillRule::Winding,
             Transform::identity(),
             None,
         );
-        let (halo, core) = outline_widths(self.layout.unit);
+        let (halo, core) = outline_widths(self.style, self.layout.unit);
         #[allow(clippy::cast_possible_truncation, reason = "stroke widths")]
         let (halo, core) = (halo as f32, core as f32);
-        stroke_path(pixmap, &hex, &paint(OUTLIER_HALO_RGB, 1.0), halo);
-        stroke_path(pixmap, &hex, &paint(OUTLIER_RGB, 1.0), core);
-        let style = self.regular(17.0, INK_SOFT_RGB);
+        let look = &self.style.outliers;
+        stroke_path(pixmap, &hex, &paint(look.halo.0, 1.0), halo);
+        stroke_path(pixmap, &hex, &paint(look.colour.0, 1.0), core);
+        let style = self.regular(self.style.text.label_size, self.style.colours.ink_soft.0);
         style.draw(
             pixmap,
             cx + r + self.px(14.0),
@@ -379,9 +425,10 @@ impl Page<'_> {
         let bar_top = (top + self.px(52.0) + self.px(4.0)).round();
         let bar_h = self.px(7.0).round().max(4.0);
         let half = (length / 2.0).round();
+        let ink_soft = self.style.colours.ink_soft.0;
         for (x, w, rgb) in [
-            (left, half, INK_SOFT_RGB),
-            (left + half, length - half, PAPER_RGB),
+            (left, half, ink_soft),
+            (left + half, length - half, self.style.colours.paper.0),
         ] {
             if let Some(r) = Rect::from_xywh(x, bar_top, w, bar_h) {
                 pixmap.fill_rect(r, &paint(rgb, 1.0), Transform::identity(), None);
@@ -391,17 +438,17 @@ impl Page<'_> {
             stroke_path(
                 pixmap,
                 &PathBuilder::from_rect(r),
-                &paint(INK_SOFT_RGB, 1.0),
+                &paint(ink_soft, 1.0),
                 1.0,
             );
         }
-        let style = self.regular(17.0, INK_SOFT_RGB);
+        let style = self.regular(self.style.text.label_size, ink_soft);
         style.draw_right(pixmap, right, top + self.px(40.0), &label);
     }
 
     /// "© OpenStreetMap contributors" at the bottom right, on the row of the legend's breaks.
     pub(super) fn attribution(&self, pixmap: &mut Pixmap) {
-        let style = self.regular(15.0, INK_QUIET_RGB);
+        let style = self.regular(self.style.text.tick_size, self.style.colours.ink_quiet.0);
         let right = self.page_width() - self.margin();
         let baseline = self.footer_top() + self.px(52.0 + 14.0 + 5.0 + 17.0);
         style.draw_right(pixmap, right, baseline, ATTRIBUTION);
@@ -417,6 +464,7 @@ fn stroke_path(pixmap: &mut Pixmap, path: &tiny_skia::Path, paint: &Paint<'_>, w
 }
 
 #[cfg(test)]
+#[allow(clippy::unwrap_used, reason = "constant test inputs")]
 mod tests {
     use super::*;
 
@@ -438,6 +486,27 @@ mod tests {
         );
         assert_eq!(Ticks::log(10.0).values, vec![0.0, 1.0, 5.0, 10.0]);
         assert_eq!(Ticks::log(5.0).values, vec![0.0, 1.0, 2.0, 5.0]);
+    }
+
+    #[test]
+    fn ratio_breaks_are_powers_of_two() {
+        let cells = |v: f64| {
+            vec![HeatCell {
+                cell: h3o::CellIndex::try_from(0x08a1_fb46_622d_7fff_u64).unwrap(),
+                value: v,
+            }]
+        };
+        let t = Ticks::new(Scale::Ratio, &cells(5.0), None);
+        assert_eq!(t.max, 8.0);
+        assert_eq!(t.values, vec![0.125, 0.25, 0.5, 1.0, 2.0, 4.0, 8.0]);
+        assert_eq!(t.label(Scale::Ratio, 0.25), "1/4");
+        assert_eq!(t.label(Scale::Ratio, 4.0), "4");
+        // A cell far below expectation sets the range too.
+        let t = Ticks::new(Scale::Ratio, &cells(1.0 / 12.0), None);
+        assert_eq!(t.max, 16.0);
+        assert_eq!(t.values, vec![0.0625, 0.25, 1.0, 4.0, 16.0]);
+        assert_eq!(Ticks::new(Scale::Ratio, &[], None).max, 2.0);
+        assert_eq!(Ticks::new(Scale::Ratio, &cells(1e6), None).max, 16.0);
     }
 
     #[test]

@@ -1,37 +1,32 @@
-//! Text on the image: the embedded DejaVu Sans faces (Bitstream Vera licence, see
-//! `assets/fonts/LICENSE-DejaVu.txt`), single-line layout with kerning, and coverage blending
-//! straight into the pixmap.
+//! Text on the image: the style's faces (by default the embedded DejaVu Sans, Bitstream Vera
+//! licence, see `assets/fonts/LICENSE-DejaVu.txt`), single-line layout with kerning, and
+//! coverage blending straight into the pixmap.
 
-use ab_glyph::{point, Font as _, FontRef, PxScale, ScaleFont as _};
+use ab_glyph::{point, Font as _, FontArc, PxScale, ScaleFont as _};
 use tiny_skia::Pixmap;
-
-/// DejaVu Sans, regular.
-static REGULAR: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
-/// DejaVu Sans, bold.
-static BOLD: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans-Bold.ttf");
 
 /// The two faces the image uses.
 pub(super) struct Fonts {
     /// Body text, legend and labels.
-    pub regular: FontRef<'static>,
+    pub regular: FontArc,
     /// The title.
-    pub bold: FontRef<'static>,
+    pub bold: FontArc,
 }
 
 impl Fonts {
-    /// Parses the embedded faces.
-    pub(super) fn load() -> Result<Self, ab_glyph::InvalidFont> {
-        Ok(Self {
-            regular: FontRef::try_from_slice(REGULAR)?,
-            bold: FontRef::try_from_slice(BOLD)?,
-        })
+    /// The style's faces (loaded and checked when the style was read).
+    pub(super) fn of(style: &super::Style) -> Self {
+        Self {
+            regular: style.regular.clone(),
+            bold: style.bold.clone(),
+        }
     }
 }
 
 /// A face at a size in a colour. `size` is ab_glyph's pixel scale (ascent to descent).
 #[derive(Clone, Copy)]
 pub(super) struct Style<'f> {
-    pub font: &'f FontRef<'static>,
+    pub font: &'f FontArc,
     pub size: f32,
     pub rgb: [u8; 3],
 }

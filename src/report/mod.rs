@@ -21,6 +21,8 @@ use std::path::{Path, PathBuf};
 
 pub use text::{escape_html, group_thousands, slugify, MAX_SLUG_LEN};
 
+pub(crate) use page::csp_hash;
+
 use crate::summary::{RegionReport, Summary};
 
 /// Folder names at the top of the report that other writers use; a region slug never takes

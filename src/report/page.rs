@@ -37,7 +37,7 @@ fn base64(bytes: &[u8]) -> String {
 }
 
 /// A CSP source expression allowing exactly this inline text.
-fn csp_hash(text: &str) -> String {
+pub(crate) fn csp_hash(text: &str) -> String {
     format!("'sha256-{}'", base64(&Sha256::digest(text.as_bytes())))
 }
 
