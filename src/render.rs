@@ -16,6 +16,7 @@
 //!   [`MAX_MAP_ASPECT`] times its width; a taller extent makes the map narrower instead.
 
 mod colormaps;
+mod curve;
 mod draw;
 mod legend;
 mod text;
@@ -25,6 +26,8 @@ use std::path::{Path, PathBuf};
 use std::str::FromStr;
 
 use tiny_skia::Pixmap;
+
+pub use curve::{render_pr_curve, CurveSeries};
 
 /// Largest image side in pixels the renderer accepts.
 pub const MAX_SIDE: u32 = 8192;
