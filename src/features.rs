@@ -737,10 +737,14 @@ pub const FEATURES: &[Feature] = &[
         meaning: "ln(1 + characters in the comment)",
         value: |c| ln1(c.comment_chars),
         words: |c| {
-            format!(
-                "a comment of {}",
-                plural(c.comment_chars, "character", "characters")
-            )
+            if c.comment_chars == 0 {
+                "no changeset comment".to_owned()
+            } else {
+                format!(
+                    "a comment of {}",
+                    plural(c.comment_chars, "character", "characters")
+                )
+            }
         },
     },
     Feature {
