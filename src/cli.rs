@@ -6,12 +6,18 @@ use std::path::{Path, PathBuf};
 use clap::{Args, Parser, Subcommand};
 
 use crate::demo::{self, DemoOptions};
+use crate::evaluate::{EvaluateError, EvaluateOptions};
+use crate::features::{FeatureConfig, FeatureContext, FEATURES};
+use crate::fit::{FitError, Model};
 use crate::ingest::{self, IngestError, IngestSummary};
+use crate::labels::{LabelOptions, LabelsFileError};
+use crate::land::{Land, LandError};
 use crate::measure::Measure;
 use crate::model::IsoWeek;
 use crate::pipeline::{self, PipelineError, ReportOptions};
 use crate::progress::Progress;
 use crate::render::{Colormap, Style, StyleError};
+use crate::score::Scoring;
 use crate::store::{Store, StoreError};
 use crate::tiles::{TileError, TileOptions, ZoomRange, DEFAULT_MAX_TILES};
 
@@ -61,6 +67,85 @@ pub enum Command {
         out: PathBuf,
         #[command(flatten)]
         settings: ReportArgs,
+    },
+    /// Derive labels from revert changesets: 1 for changesets reverted with vandalism or spam cited, 0 for reverted mistakes and for settled, unreverted work.
+    Labels {
+        #[arg(long)]
+        db: PathBuf,
+        /// Labels file to write (`changeset_id,label`).
+        #[arg(long)]
+        out: PathBuf,
+        /// Unreverted changesets become negatives only when at least this many days older than the newest changeset.
+        #[arg(long, default_value_t = 14.0)]
+        settle_days: f64,
+    },
+    /// Fit logistic-regression weights from labels and write a model file for `report --model`.
+    Fit {
+        #[arg(long)]
+        db: PathBuf,
+        /// Labels file (`changeset_id,label`).
+        #[arg(long)]
+        labels: PathBuf,
+        /// Model file to write (JSON).
+        #[arg(long)]
+        out: PathBuf,
+        /// L2 penalty on the standardised weights (scikit-learn's 1/C).
+        #[arg(long, default_value_t = 1.0)]
+        l2: f64,
+        /// Land layer for the offshore feature: `world` (built in), a GeoJSON file, or `none`;
+        /// use the same as for reports.
+        #[arg(long, default_value = "world")]
+        land: crate::land::LandSource,
+    },
+    /// Measure scores against labels on mappers held out from training: precision, recall, F1, accuracy, a confusion table and a precision-recall curve.
+    Evaluate {
+        #[arg(long)]
+        db: PathBuf,
+        /// Labels file (`changeset_id,label`).
+        #[arg(long)]
+        labels: PathBuf,
+        /// Also evaluate this model file.
+        #[arg(long)]
+        model: Option<PathBuf>,
+        /// Also evaluate scores computed elsewhere (`changeset_id,score`).
+        #[arg(long)]
+        scores: Option<PathBuf>,
+        /// Folder for metrics.json, confusion.csv, pr_curve.csv and pr_curve.png.
+        #[arg(long)]
+        out: PathBuf,
+        /// Land layer for the offshore feature: `world` (built in), a GeoJSON file, or `none`;
+        /// use the same as for reports.
+        #[arg(long, default_value = "world")]
+        land: crate::land::LandSource,
+        /// Changesets scoring at or above this are flagged.
+        #[arg(long, default_value_t = 0.5)]
+        flag_threshold: f64,
+        /// Share of mappers held out for testing.
+        #[arg(long, default_value_t = 0.3)]
+        test_share: f64,
+        /// Seed of the split by mapper.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// L2 penalty of the model fitted on the training mappers.
+        #[arg(long, default_value_t = 1.0)]
+        l2: f64,
+    },
+    /// Print one changeset's features, score and reasons.
+    Explain {
+        #[arg(long)]
+        db: PathBuf,
+        /// The changeset id.
+        changeset: i64,
+        /// Score with this model file instead of the default scorecard.
+        #[arg(long, conflicts_with = "scores")]
+        model: Option<PathBuf>,
+        /// Take the score from this file (`changeset_id,score`).
+        #[arg(long)]
+        scores: Option<PathBuf>,
+        /// Land layer for the offshore feature: `world` (built in), a GeoJSON file, or `none`;
+        /// use the same as for reports.
+        #[arg(long, default_value = "world")]
+        land: crate::land::LandSource,
     },
     /// Generate the fictional demo region, ingest it and write its report.
     Demo {
@@ -138,6 +223,35 @@ pub struct ReportArgs {
     /// Text for the report's "generated at" line (default: now, UTC).
     #[arg(long)]
     pub generated_at: Option<String>,
+    /// Score changesets with this model file (from `fit`) instead of the default scorecard.
+    #[arg(long, conflicts_with = "scores")]
+    pub model: Option<PathBuf>,
+    /// Take changeset scores from this CSV (`changeset_id,score`, scores 0-1) computed elsewhere; changesets missing from it keep the default scorecard's score.
+    #[arg(long)]
+    pub scores: Option<PathBuf>,
+}
+
+/// The scoring that `--model` or `--scores` ask for (the default scorecard without either).
+///
+/// # Errors
+/// A [`Failure`] when the file is unreadable or malformed.
+fn scoring(model: Option<&Path>, scores: Option<&Path>) -> Result<Scoring, Failure> {
+    if let Some(p) = model {
+        return Ok(Scoring::Model(Model::load(p)?));
+    }
+    if let Some(p) = scores {
+        let scores = crate::labels::read_scores(p)?;
+        let source = p.file_name().map_or_else(
+            || p.display().to_string(),
+            |n| n.to_string_lossy().into_owned(),
+        );
+        return Ok(Scoring::Imported { scores, source });
+    }
+    Ok(Scoring::Scorecard)
+}
+
+fn load_land(source: &crate::land::LandSource) -> Result<Land, Failure> {
+    source.load().map_err(Failure::from)
 }
 
 fn parse_week(s: &str) -> Result<IsoWeek, String> {
@@ -215,6 +329,52 @@ impl From<StoreError> for Failure {
         Self {
             message: e.to_string(),
             code: exit::STATE,
+        }
+    }
+}
+
+impl From<LabelsFileError> for Failure {
+    fn from(e: LabelsFileError) -> Self {
+        Self {
+            message: e.to_string(),
+            code: exit::BAD_INPUT,
+        }
+    }
+}
+
+impl From<FitError> for Failure {
+    fn from(e: FitError) -> Self {
+        let code = match &e {
+            FitError::Io { .. } => exit::OUTPUT,
+            _ => exit::BAD_INPUT,
+        };
+        Self {
+            message: e.to_string(),
+            code,
+        }
+    }
+}
+
+impl From<LandError> for Failure {
+    fn from(e: LandError) -> Self {
+        Self {
+            message: e.to_string(),
+            code: exit::BAD_INPUT,
+        }
+    }
+}
+
+impl From<EvaluateError> for Failure {
+    fn from(e: EvaluateError) -> Self {
+        let code = match &e {
+            EvaluateError::Store(_) => exit::STATE,
+            EvaluateError::Data(_) => exit::NO_DATA,
+            EvaluateError::Options(_) => exit::BAD_INPUT,
+            EvaluateError::Render(_) | EvaluateError::Io { .. } => exit::OUTPUT,
+        };
+        Self {
+            message: e.to_string(),
+            code,
         }
     }
 }
@@ -322,6 +482,158 @@ fn tiles(
     Ok(())
 }
 
+fn labels(db: &Path, out: &Path, settle_days: f64, progress: &Progress) -> Result<(), Failure> {
+    let store = Store::open(db)?;
+    let found = crate::labels::derive_labels(&store, &LabelOptions { settle_days })?;
+    crate::labels::write_labels(out, &found.labels).map_err(|e| Failure {
+        message: e.to_string(),
+        code: exit::OUTPUT,
+    })?;
+    let positives = found.labels.values().filter(|&&l| l == 1).count();
+    progress.note(&format!(
+        "{} revert changesets ({} citing vandalism): {} changesets labelled 1, {} labelled 0 ({} of them reverted without vandalism cited); {} ids named by reverts are not in the database; written to {}",
+        found.reverts,
+        found.vandalism_reverts,
+        positives,
+        found.labels.len() - positives,
+        found.reverted_negatives,
+        found.unknown_targets,
+        out.display()
+    ));
+    Ok(())
+}
+
+fn fit(
+    db: &Path,
+    labels_path: &Path,
+    out: &Path,
+    l2: f64,
+    land: &crate::land::LandSource,
+    progress: &Progress,
+) -> Result<(), Failure> {
+    let labels = crate::labels::read_labels(labels_path)?;
+    let store = Store::open(db)?;
+    let land = load_land(land)?;
+    let ctx = FeatureContext::load(&store, &land, FeatureConfig::default())?;
+    let ids = labels.keys().copied().collect();
+    let features = ctx.for_changesets(&ids, progress)?;
+    let rows: Vec<_> = features
+        .iter()
+        .filter_map(|f| labels.get(&f.id).map(|&l| (f, l == 1)))
+        .collect();
+    let model = Model::fit(&rows, l2)?;
+    model.save(out)?;
+    progress.note(&format!(
+        "fitted on {} changesets ({} labelled 1; {} labelled changesets have no edits in the database) in {} Newton iterations; model written to {}",
+        rows.len(),
+        model.training.positives,
+        labels.len() - rows.len(),
+        model.training.iterations,
+        out.display()
+    ));
+    Ok(())
+}
+
+fn evaluate(
+    db: &Path,
+    labels_path: &Path,
+    scorers: &[(String, Scoring)],
+    out: &Path,
+    land: &crate::land::LandSource,
+    opts: &EvaluateOptions,
+    progress: &Progress,
+) -> Result<(), Failure> {
+    let labels = crate::labels::read_labels(labels_path)?;
+    let store = Store::open(db)?;
+    let land = load_land(land)?;
+    let ctx = FeatureContext::load(&store, &land, FeatureConfig::default())?;
+    let run = crate::evaluate::evaluate(&ctx, &labels, scorers, opts, progress)?;
+    crate::evaluate::write_run(out, &run)?;
+    println!(
+        "train: {} changesets ({} labelled 1) of {} mappers; test: {} changesets ({} labelled 1) of {} other mappers",
+        run.train.changesets,
+        run.train.positives,
+        run.train.mappers,
+        run.test.changesets,
+        run.test.positives,
+        run.test.mappers
+    );
+    println!("scorer | precision | recall | F1 | accuracy | average precision | TP FP TN FN");
+    for e in &run.evaluations {
+        let c = e.confusion;
+        println!(
+            "{} | {:.3} | {:.3} | {:.3} | {:.4} | {:.3} | {} {} {} {}",
+            e.scorer,
+            e.precision,
+            e.recall,
+            e.f1,
+            e.accuracy,
+            e.average_precision,
+            c.true_positives,
+            c.false_positives,
+            c.true_negatives,
+            c.false_negatives
+        );
+    }
+    progress.note(&format!("evaluation written to {}", out.display()));
+    Ok(())
+}
+
+fn explain(db: &Path, id: i64, scoring: &Scoring, land: &crate::land::LandSource) -> Result<(), Failure> {
+    let store = Store::open(db)?;
+    let land = load_land(land)?;
+    let ctx = FeatureContext::load(&store, &land, FeatureConfig::default())?;
+    let quiet = Progress::new(true);
+    let features = ctx.for_changesets(&std::iter::once(id).collect(), &quiet)?;
+    let Some(c) = features.first() else {
+        return Err(Failure {
+            message: format!(
+                "{}: changeset {id} has no edits in the database",
+                db.display()
+            ),
+            code: exit::NO_DATA,
+        });
+    };
+    let s = scoring.score(c);
+    println!("changeset {} by {} (uid {})", c.id, c.user, c.uid);
+    if !c.comment.is_empty() {
+        println!("comment: {}", c.comment);
+    }
+    println!("score: {:.4} ({})", s.score, scoring.name());
+    println!("reasons, strongest first:");
+    for (_, r) in &s.reasons {
+        println!("  - {r}");
+    }
+    if ctx.reverts.reverted(c.id).is_some() {
+        let by: Vec<String> = ctx
+            .reverts
+            .reverts
+            .iter()
+            .filter(|x| x.targets.contains(&c.id))
+            .map(|x| {
+                format!(
+                    "{}{}",
+                    x.id,
+                    if x.vandalism {
+                        " (vandalism cited)"
+                    } else {
+                        ""
+                    }
+                )
+            })
+            .collect();
+        println!("reverted by: {}", by.join(", "));
+    }
+    println!("features:");
+    for f in FEATURES {
+        println!("  {:<30} {:>9.3}  {}", f.name, f.value(c), f.words(c));
+    }
+    println!(
+        "A score is a statistical prompt, not a verdict: look at the edits, assume good faith, talk to the mapper first, and follow the community's and the OSM Foundation's guidelines on reverts and disputes."
+    );
+    Ok(())
+}
+
 /// Runs a parsed command line.
 ///
 /// # Errors
@@ -335,7 +647,11 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
             progress.note(&ingest_line(&s));
             Ok(())
         }
-        Command::Report { db, out, settings } => report(&db, &out, &settings.options()?, &progress),
+        Command::Report { db, out, settings } => {
+            let mut opts = settings.options()?;
+            opts.scoring = scoring(settings.model.as_deref(), settings.scores.as_deref())?;
+            report(&db, &out, &opts, &progress)
+        }
         Command::Tiles {
             db,
             out,
@@ -355,6 +671,65 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
             };
             tiles(&db, &out, &settings.options()?, &opts, &progress)
         }
+        Command::Labels {
+            db,
+            out,
+            settle_days,
+        } => labels(&db, &out, settle_days, &progress),
+        Command::Fit {
+            db,
+            labels,
+            out,
+            l2,
+            land,
+        } => fit(&db, &labels, &out, l2, &land, &progress),
+        Command::Evaluate {
+            db,
+            labels,
+            model,
+            scores,
+            out,
+            land,
+            flag_threshold,
+            test_share,
+            seed,
+            l2,
+        } => {
+            let mut scorers = Vec::new();
+            if let Some(p) = &model {
+                scorers.push((format!("model {}", p.display()), scoring(Some(p), None)?));
+            }
+            if let Some(p) = &scores {
+                scorers.push((format!("imported {}", p.display()), scoring(None, Some(p))?));
+            }
+            let opts = EvaluateOptions {
+                threshold: flag_threshold,
+                test_share,
+                seed,
+                l2,
+            };
+            evaluate(
+                &db,
+                &labels,
+                &scorers,
+                &out,
+                &land,
+                &opts,
+                &progress,
+            )
+        }
+        Command::Explain {
+            db,
+            changeset,
+            model,
+            scores,
+            land,
+        } => explain(
+            &db,
+            changeset,
+            &scoring(model.as_deref(), scores.as_deref())?,
+            &land,
+        ),
         Command::Demo {
             out,
             seed,

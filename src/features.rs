@@ -3,14 +3,18 @@
 //!
 //! Per-edit facts ([`EditFacts`]) are computed once here and reused by the cell aggregates, so a
 //! "spam-like rename" means the same thing in a changeset's reasons and in a cell's count.
+//! [`FEATURES`] is the one numeric feature vector the fitted models read; its table, with each
+//! feature's meaning, is in `docs/features.md`.
 
 use std::collections::HashMap;
 
 use rusqlite::params;
 
+use crate::labels::{RevertIndex, RevertedBy};
 use crate::land::Land;
-use crate::locate::{ChangesetMeta, Edit};
+use crate::locate::{load_edits, ChangesetMeta, Edit};
 use crate::model::{ElementType, Op};
+use crate::progress::Progress;
 use crate::store::{packed_tag, unpack_tags, Store, StoreError};
 
 /// Tunables of the evidence.
@@ -20,6 +24,10 @@ pub struct FeatureConfig {
     pub newcomer_days: f64,
     /// A non-maritime object created in water this far from land (metres) counts as offshore.
     pub offshore_min_m: f64,
+    /// A node moved at least this far (metres) by one modification is a large move.
+    pub large_move_m: f64,
+    /// A deleted object unchanged for at least this many days counts as old.
+    pub old_object_days: f64,
 }
 
 impl Default for FeatureConfig {
@@ -27,6 +35,8 @@ impl Default for FeatureConfig {
         Self {
             newcomer_days: 30.0,
             offshore_min_m: 500.0,
+            large_move_m: 100.0,
+            old_object_days: 365.0,
         }
     }
 }
@@ -137,12 +147,104 @@ pub struct EditFacts {
     pub tags_stripped: bool,
     /// Deletion of an object that had five or more versions.
     pub deleted_mature: bool,
+    /// Deletion of an object unchanged for [`FeatureConfig::old_object_days`] or more.
+    pub deleted_old: bool,
+    /// A node moved [`FeatureConfig::large_move_m`] or more.
+    pub large_move: bool,
+    /// A non-maritime tagged object created where no data existed nearby before its changeset
+    /// (see [`ExistingData`]).
+    pub far_create: bool,
 }
 
-/// The mappers' histories, from changeset metadata: each mapper's changeset start times, sorted.
+/// Grid size of [`ExistingData`], in 1e-7 degrees (0.01°, about 1.1 km north-south).
+const GRID_E7: i64 = 100_000;
+
+/// Where map data existed, and since when: for each 0.01° × 0.01° grid square, the time of the
+/// first node known there (the snapshot's nodes count as always there). A creation is "far from
+/// existing data" when the square it lies in and its eight neighbours (about 3 km across) held no
+/// node before its changeset began.
+#[derive(Debug, Default, Clone)]
+pub struct ExistingData {
+    first: HashMap<(i64, i64), i64>,
+}
+
+fn grid_of(lat_e7: i64, lon_e7: i64) -> (i64, i64) {
+    (
+        (lat_e7 + 900_000_000).div_euclid(GRID_E7),
+        (lon_e7 + 1_800_000_000).div_euclid(GRID_E7),
+    )
+}
+
+impl ExistingData {
+    /// Reads node positions from the database: the node-location index (nodes that were never
+    /// seen created count as existing from the start) and the creations in the diffs.
+    ///
+    /// # Errors
+    /// On database failure.
+    pub fn load(store: &Store) -> Result<Self, StoreError> {
+        let conn = store.conn();
+        let mut first: HashMap<(i64, i64), i64> = HashMap::new();
+        let grid = format!("(lat_e7 + 900000000) / {GRID_E7}, (lon_e7 + 1800000000) / {GRID_E7}");
+        let mut st = conn
+            .prepare(&format!(
+                "SELECT DISTINCT {grid} FROM elements e WHERE etype = 0 AND lat_e7 IS NOT NULL
+                 AND NOT EXISTS (SELECT 1 FROM edits d
+                                 WHERE d.etype = 0 AND d.eid = e.eid AND d.version = 1 AND d.op = 0)"
+            ))
+            .map_err(|e| store.map_err(e))?;
+        let rows = st
+            .query_map([], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, i64>(1)?)))
+            .map_err(|e| store.map_err(e))?;
+        for row in rows {
+            first.insert(row.map_err(|e| store.map_err(e))?, i64::MIN);
+        }
+        let mut st = conn
+            .prepare(&format!(
+                "SELECT {grid}, MIN(ts) FROM edits WHERE etype = 0 AND op = 0 AND lat_e7 IS NOT NULL
+                 GROUP BY 1, 2"
+            ))
+            .map_err(|e| store.map_err(e))?;
+        let rows = st
+            .query_map([], |r| {
+                Ok((
+                    r.get::<_, i64>(0)?,
+                    r.get::<_, i64>(1)?,
+                    r.get::<_, i64>(2)?,
+                ))
+            })
+            .map_err(|e| store.map_err(e))?;
+        for row in rows {
+            let (a, b, t) = row.map_err(|e| store.map_err(e))?;
+            let e = first.entry((a, b)).or_insert(t);
+            *e = (*e).min(t);
+        }
+        Ok(Self { first })
+    }
+
+    /// Whether no node existed before `t` within about 1.5 km of `p` (the grid square and its
+    /// neighbours). Always false when nothing was loaded.
+    #[must_use]
+    pub fn is_far(&self, p: crate::model::Coord, t: i64) -> bool {
+        if self.first.is_empty() {
+            return false;
+        }
+        let (a, b) = grid_of(i64::from(p.lat_e7()), i64::from(p.lon_e7()));
+        (-1..=1).all(|da| {
+            (-1..=1).all(|db| !matches!(self.first.get(&(a + da, b + db)), Some(&f) if f < t))
+        })
+    }
+}
+
+/// The mappers' histories: each mapper's changeset start times (from changeset metadata), their
+/// earlier edits (from the diffs) and which of their changesets were reverted (from revert
+/// comments).
 #[derive(Debug, Default)]
 pub struct MapperHistory {
     created: HashMap<i64, Vec<i64>>,
+    /// Per mapper, per changeset in time order: (first edit time, edits so far, deletions so far).
+    work: HashMap<i64, Vec<(i64, u64, u64)>>,
+    /// Per mapper: how each reverted changeset of theirs was reverted, by changeset start time.
+    reverted: HashMap<i64, Vec<(i64, RevertedBy)>>,
 }
 
 impl MapperHistory {
@@ -150,21 +252,92 @@ impl MapperHistory {
     ///
     /// # Errors
     /// On database failure.
-    pub fn load(store: &Store, uids: impl IntoIterator<Item = i64>) -> Result<Self, StoreError> {
-        let mut st = store
-            .conn()
-            .prepare_cached("SELECT created_at FROM changesets WHERE uid = ?1 ORDER BY created_at")
+    pub fn load(
+        store: &Store,
+        uids: impl IntoIterator<Item = i64>,
+        reverts: &RevertIndex,
+    ) -> Result<Self, StoreError> {
+        let conn = store.conn();
+        let mut st = conn
+            .prepare_cached(
+                "SELECT created_at, id FROM changesets WHERE uid = ?1 ORDER BY created_at",
+            )
             .map_err(|e| store.map_err(e))?;
-        let mut created = HashMap::new();
+        let mut work_st = conn
+            .prepare_cached(
+                "SELECT MIN(ts), COUNT(*), SUM(op = 2) FROM edits WHERE uid = ?1
+                 GROUP BY changeset ORDER BY 1",
+            )
+            .map_err(|e| store.map_err(e))?;
+        let mut out = Self::default();
         for uid in uids {
-            let v = st
-                .query_map(params![uid], |r| r.get::<_, i64>(0))
+            let v: Vec<(i64, i64)> = st
+                .query_map(params![uid], |r| Ok((r.get(0)?, r.get(1)?)))
                 .map_err(|e| store.map_err(e))?
                 .collect::<Result<Vec<_>, _>>()
                 .map_err(|e| store.map_err(e))?;
-            created.insert(uid, v);
+            let reverted: Vec<(i64, RevertedBy)> = v
+                .iter()
+                .filter_map(|&(t, id)| reverts.reverted(id).map(|r| (t, r)))
+                .collect();
+            if !reverted.is_empty() {
+                out.reverted.insert(uid, reverted);
+            }
+            out.created
+                .insert(uid, v.into_iter().map(|(t, _)| t).collect());
+            let mut cum = (0u64, 0u64);
+            let w: Vec<(i64, u64, u64)> = work_st
+                .query_map(params![uid], |r| {
+                    Ok((
+                        r.get::<_, i64>(0)?,
+                        r.get::<_, i64>(1)?,
+                        r.get::<_, i64>(2)?,
+                    ))
+                })
+                .map_err(|e| store.map_err(e))?
+                .map(|row| {
+                    row.map(|(t, n, d)| {
+                        cum.0 += u64::try_from(n).unwrap_or(0);
+                        cum.1 += u64::try_from(d).unwrap_or(0);
+                        (t, cum.0, cum.1)
+                    })
+                })
+                .collect::<Result<Vec<_>, _>>()
+                .map_err(|e| store.map_err(e))?;
+            out.work.insert(uid, w);
         }
-        Ok(Self { created })
+        Ok(out)
+    }
+
+    /// Share of deletions among the mapper's edits (in the diffs) made before `t`, and how many
+    /// edits that is.
+    #[must_use]
+    pub fn prior_deletion_share(&self, uid: i64, t: i64) -> (f64, u64) {
+        let Some(w) = self.work.get(&uid) else {
+            return (0.0, 0);
+        };
+        let k = w.partition_point(|x| x.0 < t);
+        match k.checked_sub(1).and_then(|i| w.get(i)) {
+            #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+            Some(&(_, n, d)) if n > 0 => (d as f64 / n as f64, n),
+            _ => (0.0, 0),
+        }
+    }
+
+    /// The mapper's changesets started before `t` that a revert made before `t` named: all of
+    /// them, and those whose revert cited vandalism.
+    #[must_use]
+    pub fn prior_reverted(&self, uid: i64, t: i64) -> (u64, u64) {
+        let Some(v) = self.reverted.get(&uid) else {
+            return (0, 0);
+        };
+        let before = v.iter().filter(|(c, _)| *c < t);
+        let (mut any, mut vandalism) = (0, 0);
+        for (_, r) in before {
+            any += u64::from(r.first < t);
+            vandalism += u64::from(r.first_vandalism.is_some_and(|f| f < t));
+        }
+        (any, vandalism)
     }
 
     /// Time of the mapper's first changeset seen, if any.
@@ -218,8 +391,14 @@ pub fn edit_facts(
     hist: &MapperHistory,
     first_edit_by_uid: &HashMap<i64, i64>,
     land: &Land,
+    existing: &ExistingData,
     cfg: &FeatureConfig,
 ) -> Vec<EditFacts> {
+    let mut cs_start: HashMap<i64, i64> = HashMap::new();
+    for e in edits {
+        let t = cs_start.entry(e.changeset).or_insert(e.ts);
+        *t = (*t).min(e.ts);
+    }
     edits
         .iter()
         .map(|e| {
@@ -247,6 +426,17 @@ pub fn edit_facts(
                 f.deleted_feature = e.etype != ElementType::Node
                     || e.prev_tags.as_deref().is_none_or(|t| !t.is_empty());
                 f.deleted_mature = e.prev_version.unwrap_or(e.version - 1) >= 5;
+                #[allow(clippy::cast_precision_loss, reason = "seconds fit f64 exactly")]
+                {
+                    f.deleted_old = e
+                        .prev_ts
+                        .is_some_and(|p| (e.ts - p) as f64 / 86_400.0 >= cfg.old_object_days);
+                }
+            }
+            if e.op == Op::Modify && e.etype == ElementType::Node {
+                if let (Some(a), Some(b)) = (e.pos, e.prev_pos) {
+                    f.large_move = a.distance_m(b) >= cfg.large_move_m;
+                }
             }
             let tagged = !e.tags.is_empty();
             let judged = e.etype != ElementType::Relation || tagged;
@@ -258,6 +448,10 @@ pub fn edit_facts(
                         f.offshore_m = d;
                     }
                 }
+            }
+            if e.op == Op::Create && tagged && judged && !is_maritime(&e.tags) {
+                let start = cs_start.get(&e.changeset).copied().unwrap_or(e.ts);
+                f.far_create = e.pos.is_some_and(|p| existing.is_far(p, start));
             }
             f
         })
@@ -283,11 +477,21 @@ pub struct ChangesetFeatures {
     pub deletion_share: f64,
     pub bbox_diag_km: f64,
     pub duration_min: f64,
+    /// Characters in the comment (trimmed).
+    pub comment_chars: u64,
     // Mapper.
     pub account_age_days: f64,
     pub history_known: bool,
     pub prior_changesets: u64,
     pub active_weeks: u64,
+    /// Share of deletions among the mapper's earlier edits in the diffs.
+    pub prior_deletion_share: f64,
+    /// Earlier edits of the mapper in the diffs.
+    pub prior_edits: u64,
+    /// The mapper's earlier changesets already reverted when this one began.
+    pub prior_reverted: u64,
+    /// Of those, reverted with vandalism cited.
+    pub prior_vandalism_reverted: u64,
     // Edits.
     pub names_changed: u64,
     pub spam_names: u64,
@@ -295,8 +499,14 @@ pub struct ChangesetFeatures {
     pub repeated_name_max: u64,
     pub tags_stripped: u64,
     pub deleted_mature: u64,
+    /// Deleted objects unchanged for a year or more.
+    pub deleted_old: u64,
+    /// Nodes moved 100 m or more.
+    pub large_moves: u64,
     pub offshore_creates: u64,
     pub offshore_max_m: f64,
+    /// Tagged objects created about 1.5 km or more from any earlier data.
+    pub far_creates: u64,
 }
 
 /// Builds each changeset's features from its edits (and metadata where present).
@@ -344,6 +554,9 @@ pub fn changeset_features(
         c.spam_names += u64::from(f.spam_name);
         c.tags_stripped += u64::from(f.tags_stripped);
         c.deleted_mature += u64::from(f.deleted_mature);
+        c.deleted_old += u64::from(f.deleted_old);
+        c.large_moves += u64::from(f.large_move);
+        c.far_creates += u64::from(f.far_create);
         if f.offshore_create {
             c.offshore_creates += 1;
             c.offshore_max_m = c.offshore_max_m.max(f.offshore_m);
@@ -380,11 +593,488 @@ pub fn changeset_features(
             c.history_known = hist.first_seen(c.uid).is_some();
             c.prior_changesets = hist.prior(c.uid, c.created_at) as u64;
             c.active_weeks = hist.active_weeks(c.uid, c.created_at) as u64;
+            (c.prior_deletion_share, c.prior_edits) =
+                hist.prior_deletion_share(c.uid, c.created_at);
+            (c.prior_reverted, c.prior_vandalism_reverted) =
+                hist.prior_reverted(c.uid, c.created_at);
+            c.comment_chars = c.comment.trim().chars().count() as u64;
             c
         })
         .collect();
     out.sort_by_key(|c| c.id);
     out
+}
+
+/// One entry of the numeric feature vector that fitted models read.
+pub struct Feature {
+    /// Stable name, stored in model files.
+    pub name: &'static str,
+    /// What it measures (the features table in `docs/features.md` repeats these).
+    pub meaning: &'static str,
+    value: fn(&ChangesetFeatures) -> f64,
+    words: fn(&ChangesetFeatures) -> String,
+}
+
+impl Feature {
+    /// The feature's value for a changeset.
+    #[must_use]
+    pub fn value(&self, c: &ChangesetFeatures) -> f64 {
+        (self.value)(c)
+    }
+
+    /// The changeset's value in plain words ("account 2 days old"), for reasons.
+    #[must_use]
+    pub fn words(&self, c: &ChangesetFeatures) -> String {
+        (self.words)(c)
+    }
+}
+
+#[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+fn ln1(n: u64) -> f64 {
+    (n as f64).ln_1p()
+}
+
+#[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+fn share(part: u64, whole: u64) -> f64 {
+    if whole == 0 {
+        0.0
+    } else {
+        part as f64 / whole as f64
+    }
+}
+
+fn plural(n: u64, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
+fn type_edits(c: &ChangesetFeatures, t: usize) -> u64 {
+    c.by_type.iter().map(|op| op[t]).sum()
+}
+
+/// The feature vector, in model-file order. Counts enter as `ln(1 + n)` so a changeset of 400
+/// deletions is not 400 times one of a single deletion; shares and indicators as they are.
+pub const FEATURES: &[Feature] = &[
+    Feature {
+        name: "edits_log",
+        meaning: "ln(1 + edits in the changeset)",
+        value: |c| ln1(c.edits),
+        words: |c| plural(c.edits, "edit", "edits"),
+    },
+    Feature {
+        name: "creates_log",
+        meaning: "ln(1 + objects created)",
+        value: |c| ln1(c.creates),
+        words: |c| format!("created {}", plural(c.creates, "object", "objects")),
+    },
+    Feature {
+        name: "modifies_log",
+        meaning: "ln(1 + objects modified)",
+        value: |c| ln1(c.modifies),
+        words: |c| format!("modified {}", plural(c.modifies, "object", "objects")),
+    },
+    Feature {
+        name: "deletes_log",
+        meaning: "ln(1 + objects deleted)",
+        value: |c| ln1(c.deletes),
+        words: |c| format!("deleted {}", plural(c.deletes, "object", "objects")),
+    },
+    Feature {
+        name: "deletion_share",
+        meaning: "deletions / edits",
+        value: |c| c.deletion_share,
+        words: |c| {
+            format!(
+                "{:.0}% of its edits are deletions",
+                c.deletion_share * 100.0
+            )
+        },
+    },
+    Feature {
+        name: "way_share",
+        meaning: "edits of ways / edits",
+        value: |c| share(type_edits(c, 1), c.edits),
+        words: |c| {
+            format!(
+                "{:.0}% of its edits are ways",
+                share(type_edits(c, 1), c.edits) * 100.0
+            )
+        },
+    },
+    Feature {
+        name: "relation_share",
+        meaning: "edits of relations / edits",
+        value: |c| share(type_edits(c, 2), c.edits),
+        words: |c| {
+            format!(
+                "{:.0}% of its edits are relations",
+                share(type_edits(c, 2), c.edits) * 100.0
+            )
+        },
+    },
+    Feature {
+        name: "bbox_m_per_edit_log",
+        meaning: "ln(1 + bounding-box diagonal in metres / edits): a wide box for little work",
+        value: |c| (c.bbox_diag_km * 1000.0 / c.edits.max(1) as f64).ln_1p(),
+        words: |c| {
+            format!(
+                "a {:.1} km wide area for {}",
+                c.bbox_diag_km,
+                plural(c.edits, "edit", "edits")
+            )
+        },
+    },
+    Feature {
+        name: "no_comment",
+        meaning: "1 when the changeset has no comment",
+        value: |c| f64::from(u8::from(c.comment.trim().is_empty())),
+        words: |c| {
+            if c.comment.trim().is_empty() {
+                "no changeset comment".to_owned()
+            } else {
+                "has a changeset comment".to_owned()
+            }
+        },
+    },
+    Feature {
+        name: "comment_chars_log",
+        meaning: "ln(1 + characters in the comment)",
+        value: |c| ln1(c.comment_chars),
+        words: |c| {
+            if c.comment_chars == 0 {
+                "no changeset comment".to_owned()
+            } else {
+                format!(
+                    "a comment of {}",
+                    plural(c.comment_chars, "character", "characters")
+                )
+            }
+        },
+    },
+    Feature {
+        name: "editor_missing",
+        meaning: "1 when the changeset names no editor (created_by)",
+        value: |c| f64::from(u8::from(c.editor.trim().is_empty())),
+        words: |c| {
+            if c.editor.trim().is_empty() {
+                "names no editor software".to_owned()
+            } else {
+                format!("made with {}", c.editor.trim())
+            }
+        },
+    },
+    Feature {
+        name: "duration_log",
+        meaning: "ln(1 + minutes from first to last edit)",
+        value: |c| c.duration_min.max(0.0).ln_1p(),
+        words: |c| format!("edits spread over {:.0} minutes", c.duration_min),
+    },
+    Feature {
+        name: "account_age_log",
+        meaning: "ln(1 + account age in days): days since the mapper's first changeset seen",
+        value: |c| c.account_age_days.max(0.0).ln_1p(),
+        words: |c| format!("account {} days old", c.account_age_days.floor()),
+    },
+    Feature {
+        name: "account_under_1d",
+        meaning: "1 when the account is less than a day old",
+        value: |c| f64::from(u8::from(c.account_age_days < 1.0)),
+        words: |c| format!("account {} days old", c.account_age_days.floor()),
+    },
+    Feature {
+        name: "account_under_7d",
+        meaning: "1 when the account is less than 7 days old",
+        value: |c| f64::from(u8::from(c.account_age_days < 7.0)),
+        words: |c| format!("account {} days old", c.account_age_days.floor()),
+    },
+    Feature {
+        name: "account_under_30d",
+        meaning: "1 when the account is less than 30 days old",
+        value: |c| f64::from(u8::from(c.account_age_days < 30.0)),
+        words: |c| format!("account {} days old", c.account_age_days.floor()),
+    },
+    Feature {
+        name: "prior_changesets_log",
+        meaning: "ln(1 + the mapper's earlier changesets)",
+        value: |c| ln1(c.prior_changesets),
+        words: |c| {
+            plural(
+                c.prior_changesets,
+                "earlier changeset",
+                "earlier changesets",
+            )
+        },
+    },
+    Feature {
+        name: "active_weeks_log",
+        meaning: "ln(1 + distinct weeks with an earlier changeset)",
+        value: |c| ln1(c.active_weeks),
+        words: |c| {
+            format!(
+                "active in {} before",
+                plural(c.active_weeks, "week", "weeks")
+            )
+        },
+    },
+    Feature {
+        name: "prior_deletion_share",
+        meaning: "deletions / edits in the mapper's earlier work (in the diffs read)",
+        value: |c| c.prior_deletion_share,
+        words: |c| {
+            format!(
+                "{:.0}% of {} earlier edits were deletions",
+                c.prior_deletion_share * 100.0,
+                c.prior_edits
+            )
+        },
+    },
+    Feature {
+        name: "prior_reverted_share",
+        meaning: "earlier changesets already reverted / earlier changesets",
+        value: |c| share(c.prior_reverted, c.prior_changesets),
+        words: |c| {
+            format!(
+                "{} of {} earlier changesets were reverted",
+                c.prior_reverted, c.prior_changesets
+            )
+        },
+    },
+    Feature {
+        name: "prior_vandalism_reverted_log",
+        meaning: "ln(1 + earlier changesets reverted with vandalism cited)",
+        value: |c| ln1(c.prior_vandalism_reverted),
+        words: |c| {
+            format!(
+                "{} reverted as vandalism before",
+                plural(
+                    c.prior_vandalism_reverted,
+                    "earlier changeset",
+                    "earlier changesets"
+                )
+            )
+        },
+    },
+    Feature {
+        name: "names_changed_log",
+        meaning: "ln(1 + names changed)",
+        value: |c| ln1(c.names_changed),
+        words: |c| format!("changed {}", plural(c.names_changed, "name", "names")),
+    },
+    Feature {
+        name: "spam_names_log",
+        meaning: "ln(1 + new names with a web address or phone number)",
+        value: |c| ln1(c.spam_names),
+        words: |c| {
+            format!(
+                "{} with a web address or phone number",
+                plural(c.spam_names, "name", "names")
+            )
+        },
+    },
+    Feature {
+        name: "repeated_name_log",
+        meaning: "ln(most objects given one and the same new name), 0 when no name repeats",
+        value: |c| ln1(c.repeated_name_max.saturating_sub(1)),
+        words: |c| {
+            format!(
+                "the same name given to {}",
+                plural(c.repeated_name_max, "object", "objects")
+            )
+        },
+    },
+    Feature {
+        name: "tags_stripped_log",
+        meaning: "ln(1 + objects losing 3 or more tags)",
+        value: |c| ln1(c.tags_stripped),
+        words: |c| {
+            format!(
+                "removed most tags from {}",
+                plural(c.tags_stripped, "object", "objects")
+            )
+        },
+    },
+    Feature {
+        name: "deleted_mature_log",
+        meaning: "ln(1 + deleted objects that had 5 or more versions)",
+        value: |c| ln1(c.deleted_mature),
+        words: |c| {
+            format!(
+                "deleted {} with 5 or more versions",
+                plural(c.deleted_mature, "object", "objects")
+            )
+        },
+    },
+    Feature {
+        name: "deleted_old_log",
+        meaning: "ln(1 + deleted objects unchanged for a year or more)",
+        value: |c| ln1(c.deleted_old),
+        words: |c| {
+            format!(
+                "deleted {} unchanged for a year or more",
+                plural(c.deleted_old, "object", "objects")
+            )
+        },
+    },
+    Feature {
+        name: "large_moves_log",
+        meaning: "ln(1 + nodes moved 100 m or more)",
+        value: |c| ln1(c.large_moves),
+        words: |c| {
+            format!(
+                "moved {} 100 m or more",
+                plural(c.large_moves, "node", "nodes")
+            )
+        },
+    },
+    Feature {
+        name: "offshore_creates_log",
+        meaning: "ln(1 + non-maritime objects created in the sea, 500 m or more from land)",
+        value: |c| ln1(c.offshore_creates),
+        words: |c| {
+            format!(
+                "created {} in the sea",
+                plural(
+                    c.offshore_creates,
+                    "non-maritime object",
+                    "non-maritime objects"
+                )
+            )
+        },
+    },
+    Feature {
+        name: "far_creates_log",
+        meaning: "ln(1 + tagged objects created about 1.5 km or more from any earlier data)",
+        value: |c| ln1(c.far_creates),
+        words: |c| {
+            format!(
+                "created {} far from any earlier data",
+                plural(c.far_creates, "object", "objects")
+            )
+        },
+    },
+];
+
+impl ChangesetFeatures {
+    /// The values of [`FEATURES`], in order.
+    #[must_use]
+    pub fn vector(&self) -> Vec<f64> {
+        FEATURES.iter().map(|f| f.value(self)).collect()
+    }
+}
+
+/// Everything the features of a time window need from the database besides its edits: the
+/// revert index, the existing-data grid and the land layer. Loaded once, used for many windows.
+pub struct FeatureContext<'a> {
+    pub store: &'a Store,
+    pub land: &'a Land,
+    pub reverts: RevertIndex,
+    pub existing: ExistingData,
+    pub cfg: FeatureConfig,
+}
+
+impl<'a> FeatureContext<'a> {
+    /// Loads the revert index and the existing-data grid.
+    ///
+    /// # Errors
+    /// On database failure.
+    pub fn load(store: &'a Store, land: &'a Land, cfg: FeatureConfig) -> Result<Self, StoreError> {
+        Ok(Self {
+            store,
+            land,
+            reverts: RevertIndex::load(store)?,
+            existing: ExistingData::load(store)?,
+            cfg,
+        })
+    }
+
+    /// Edits of `from <= ts < to` with their facts and their changesets' features.
+    ///
+    /// # Errors
+    /// On database failure.
+    pub fn window(&self, from: i64, to: i64) -> Result<Window, StoreError> {
+        let (edits, metas) = load_edits(self.store, from, to)?;
+        let mut first_edit: HashMap<i64, i64> = HashMap::new();
+        for e in &edits {
+            first_edit
+                .entry(e.uid)
+                .and_modify(|t| *t = (*t).min(e.ts))
+                .or_insert(e.ts);
+        }
+        let mut uids: Vec<i64> = first_edit.keys().copied().collect();
+        uids.sort_unstable();
+        let hist = MapperHistory::load(self.store, uids, &self.reverts)?;
+        let facts = edit_facts(
+            &edits,
+            &hist,
+            &first_edit,
+            self.land,
+            &self.existing,
+            &self.cfg,
+        );
+        let features = changeset_features(&edits, &facts, &metas, &hist, &first_edit);
+        Ok(Window {
+            edits,
+            facts,
+            features,
+        })
+    }
+
+    /// Features of the given changesets (those with edits in the database), computed a week at
+    /// a time so memory follows a week's edits, not the whole history. Each changeset's features
+    /// come from the window holding its whole day of editing.
+    ///
+    /// # Errors
+    /// On database failure.
+    pub fn for_changesets(
+        &self,
+        ids: &std::collections::BTreeSet<i64>,
+        progress: &Progress,
+    ) -> Result<Vec<ChangesetFeatures>, StoreError> {
+        // One pass over the edits: faster than a lookup per changeset without an index on it.
+        let mut st = self
+            .store
+            .conn()
+            .prepare("SELECT changeset, MIN(ts) FROM edits GROUP BY changeset")
+            .map_err(|e| self.store.map_err(e))?;
+        let rows = st
+            .query_map([], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, i64>(1)?)))
+            .map_err(|e| self.store.map_err(e))?;
+        let mut starts: Vec<(i64, i64)> = Vec::new();
+        for row in rows {
+            let (id, t) = row.map_err(|e| self.store.map_err(e))?;
+            if ids.contains(&id) {
+                starts.push((t, id));
+            }
+        }
+        starts.sort_unstable();
+        const WEEK: i64 = 604_800;
+        const DAY: i64 = 86_400;
+        let bar = progress.steps(starts.len() as u64, "features");
+        let mut out = Vec::with_capacity(starts.len());
+        let mut k = 0;
+        while k < starts.len() {
+            let from = starts[k].0;
+            let end = starts[k..].partition_point(|s| s.0 < from + WEEK) + k;
+            let wanted: HashMap<i64, ()> = starts[k..end].iter().map(|s| (s.1, ())).collect();
+            let w = self.window(from, from + WEEK + DAY)?;
+            out.extend(
+                w.features
+                    .into_iter()
+                    .filter(|f| wanted.contains_key(&f.id)),
+            );
+            bar.inc((end - k) as u64);
+            k = end;
+        }
+        bar.finish_and_clear();
+        out.sort_by_key(|c| c.id);
+        Ok(out)
+    }
+}
+
+/// The edits of a time window, their facts and their changesets' features.
+pub struct Window {
+    pub edits: Vec<Edit>,
+    pub facts: Vec<EditFacts>,
+    pub features: Vec<ChangesetFeatures>,
 }
 
 #[cfg(test)]
@@ -413,6 +1103,50 @@ mod tests {
         ] {
             assert!(!is_spam_like(s), "{s}");
         }
+    }
+
+    #[test]
+    fn feature_names_are_unique_and_the_vector_follows_them() {
+        let mut names: Vec<&str> = FEATURES.iter().map(|f| f.name).collect();
+        let c = ChangesetFeatures {
+            edits: 9,
+            deletes: 4,
+            deletion_share: 4.0 / 9.0,
+            ..ChangesetFeatures::default()
+        };
+        let v = c.vector();
+        assert_eq!(v.len(), names.len());
+        let at = |n: &str| v[names.iter().position(|x| *x == n).unwrap()];
+        assert!((at("deletes_log") - 5f64.ln()).abs() < 1e-12);
+        assert_eq!(at("no_comment"), 1.0);
+        names.sort_unstable();
+        names.dedup();
+        assert_eq!(names.len(), FEATURES.len());
+    }
+
+    #[test]
+    fn the_features_table_names_every_feature() {
+        let doc = include_str!("../docs/features.md");
+        for f in FEATURES {
+            assert!(
+                doc.contains(&format!("| `{}` | {} |", f.name, f.meaning)),
+                "{}",
+                f.name
+            );
+        }
+    }
+
+    #[test]
+    fn far_from_data_means_no_earlier_node_within_a_grid_square() {
+        let p = crate::model::Coord::from_degrees(45.2, -33.6).unwrap();
+        let g = grid_of(i64::from(p.lat_e7()), i64::from(p.lon_e7()));
+        let mut d = ExistingData::default();
+        assert!(!d.is_far(p, 1000), "no data loaded: never far");
+        d.first.insert((g.0 + 5, g.1), i64::MIN);
+        assert!(d.is_far(p, 1000));
+        d.first.insert((g.0 + 1, g.1 - 1), 2000);
+        assert!(d.is_far(p, 1000), "created later than the changeset");
+        assert!(!d.is_far(p, 3000));
     }
 
     #[test]

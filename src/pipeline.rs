@@ -11,7 +11,8 @@ use h3o::{CellIndex, LatLng, Resolution};
 
 use crate::cells::{aggregate, CellWeeks};
 use crate::detect::{detect, DetectConfig};
-use crate::features::{changeset_features, edit_facts, FeatureConfig, MapperHistory};
+use crate::features::{changeset_features, edit_facts, ExistingData, FeatureConfig, MapperHistory};
+use crate::labels::RevertIndex;
 use crate::land::{Land, LandError, LandSource};
 use crate::locate::{count_placement, load_edits};
 use crate::measure::{heat_cells, Measure};
@@ -20,7 +21,7 @@ use crate::progress::Progress;
 use crate::regions::{Region, RegionError};
 use crate::render::{HeatMap, RenderError, Style};
 use crate::report::{PageContext, ReportError};
-use crate::score::{score, Scored};
+use crate::score::{Scored, Scoring};
 use crate::store::{Store, StoreError};
 use crate::summary::{
     BaselineCounts, ChangesetRow, Counts, FlaggedChangeset, Outlier, Placement, RegionReport,
@@ -56,6 +57,8 @@ pub struct ReportOptions {
     pub baseline_weeks: u32,
     /// Changesets scoring at or above this are flagged.
     pub flag_threshold: f64,
+    /// The default scorecard, a fitted model, or imported scores.
+    pub scoring: Scoring,
     pub features: FeatureConfig,
     pub detect: DetectConfig,
     /// Map style of the heat images (colour maps, backdrop, fonts; whether roads are drawn).
@@ -75,6 +78,7 @@ impl Default for ReportOptions {
             resolution: None,
             baseline_weeks: 12,
             flag_threshold: 0.5,
+            scoring: Scoring::default(),
             features: FeatureConfig::default(),
             detect: DetectConfig::default(),
             style: Style::default(),
@@ -214,13 +218,15 @@ pub fn analyse(
     }
     let mut uids: Vec<i64> = first_edit.keys().copied().collect();
     uids.sort_unstable();
-    let hist = MapperHistory::load(store, uids)?;
-    let facts = edit_facts(&edits, &hist, &first_edit, &land, &opts.features);
+    let reverts = RevertIndex::load(store)?;
+    let existing = ExistingData::load(store)?;
+    let hist = MapperHistory::load(store, uids, &reverts)?;
+    let facts = edit_facts(&edits, &hist, &first_edit, &land, &existing, &opts.features);
     let features = changeset_features(&edits, &facts, &metas, &hist, &first_edit);
     let scored: HashMap<i64, (Scored, usize)> = features
         .iter()
         .enumerate()
-        .map(|(i, f)| (f.id, (score(f), i)))
+        .map(|(i, f)| (f.id, (opts.scoring.score(f), i)))
         .collect();
     let threshold = opts.flag_threshold;
     let score_of = |cs: i64| scored.get(&cs).map_or(0.0, |s| s.0.score);

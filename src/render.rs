@@ -16,6 +16,7 @@
 //!   [`MAX_MAP_ASPECT`] times its width; a taller extent makes the map narrower instead.
 
 mod colormaps;
+mod curve;
 mod draw;
 mod legend;
 mod style;
@@ -27,6 +28,7 @@ use std::str::FromStr;
 
 use tiny_skia::Pixmap;
 
+pub use curve::{render_pr_curve, CurveSeries};
 pub use style::{Cells, Colours, Maps, Outliers, Rgb, Roads, Style, StyleError, Text};
 
 /// Largest image side in pixels the renderer accepts.

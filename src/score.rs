@@ -14,13 +14,23 @@
 //! | 3+ objects losing 3+ tags | +0.8 | tag stripping |
 //! | 3+ deletions of objects with 5+ versions | +0.5 | long-curated objects removed |
 //! | 3+ non-maritime objects created in water | +2.5 + 0.5 ln(n / 3) | fabricated places |
+//! | 3+ tagged objects created far (about 1.5 km or more) from any earlier data | +0.8 | fabrication on land, or mapping in the wrong place |
+//! | 5+ deleted objects unchanged for a year or more | +0.4 | long-settled data removed |
+//! | 3+ nodes moved 100 m or more | +0.6 | dragged geometry, deliberate or accidental |
+//! | earlier work reverted as vandalism (before this changeset) | +1.5 | repeat vandalism is common |
+//! | 2+ earlier changesets reverted, a third or more of them | +0.5 | a pattern of reverted work, whatever the reason |
 //! | no comment | +0.4 | weak, but adds up |
 //! | a comment of 15+ characters | -0.3 | explains the work |
 //!
-//! Weights are set by hand from the reasoning above (common practice for scorecards, no source);
-//! fitting them from labelled reverts is separate work.
+//! Weights are set by hand from the reasoning above (common practice for scorecards, no source).
+//! [`Scoring`] chooses between this scorecard, a fitted logistic model (`crate::fit::Model`,
+//! whose reasons are its largest weight × feature contributions) and scores imported from
+//! elsewhere.
+
+use std::collections::BTreeMap;
 
 use crate::features::ChangesetFeatures;
+use crate::fit::Model;
 
 /// A changeset's score and its reasons.
 #[derive(Debug, Clone, PartialEq)]
@@ -126,6 +136,50 @@ pub fn score(c: &ChangesetFeatures) -> Scored {
             ),
         );
     }
+    if c.far_creates >= 3 {
+        add(
+            0.8,
+            format!(
+                "created {} objects far from any earlier data",
+                c.far_creates
+            ),
+        );
+    }
+    if c.deleted_old >= 5 {
+        add(
+            0.4,
+            format!(
+                "deleted {} objects unchanged for a year or more",
+                c.deleted_old
+            ),
+        );
+    }
+    if c.large_moves >= 3 {
+        add(0.6, format!("moved {} nodes 100 m or more", c.large_moves));
+    }
+    if c.prior_vandalism_reverted > 0 {
+        add(
+            1.5,
+            format!(
+                "{} earlier changeset{} reverted as vandalism",
+                c.prior_vandalism_reverted,
+                if c.prior_vandalism_reverted == 1 {
+                    ""
+                } else {
+                    "s"
+                }
+            ),
+        );
+    }
+    if c.prior_reverted >= 2 && 3 * c.prior_reverted >= c.prior_changesets {
+        add(
+            0.5,
+            format!(
+                "{} of {} earlier changesets reverted",
+                c.prior_reverted, c.prior_changesets
+            ),
+        );
+    }
     let comment = c.comment.trim();
     if comment.is_empty() {
         add(0.4, "no changeset comment".to_owned());
@@ -137,6 +191,60 @@ pub fn score(c: &ChangesetFeatures) -> Scored {
     Scored {
         score: logistic(total),
         reasons,
+    }
+}
+
+/// How changesets get their scores.
+#[derive(Debug, Clone, Default)]
+pub enum Scoring {
+    /// The documented default scorecard ([`score`]).
+    #[default]
+    Scorecard,
+    /// A fitted logistic model.
+    Model(Model),
+    /// Scores computed elsewhere, by changeset id; changesets missing from it get the
+    /// scorecard's score, and say so.
+    Imported {
+        scores: BTreeMap<i64, f64>,
+        /// Where they came from (a file name), for the reasons.
+        source: String,
+    },
+}
+
+impl Scoring {
+    /// Scores one changeset.
+    #[must_use]
+    pub fn score(&self, c: &ChangesetFeatures) -> Scored {
+        match self {
+            Self::Scorecard => score(c),
+            Self::Model(m) => m.score(c),
+            Self::Imported { scores, source } => {
+                let card = score(c);
+                let (value, note) = match scores.get(&c.id) {
+                    Some(&v) => (v, format!("score imported from {source}")),
+                    None => (
+                        card.score,
+                        format!("not in {source}: scored by the default scorecard"),
+                    ),
+                };
+                let mut reasons = vec![(f64::INFINITY, note)];
+                reasons.extend(card.reasons);
+                Scored {
+                    score: value,
+                    reasons,
+                }
+            }
+        }
+    }
+
+    /// A short name for reports: `scorecard`, `model` or `imported`.
+    #[must_use]
+    pub fn name(&self) -> &'static str {
+        match self {
+            Self::Scorecard => "scorecard",
+            Self::Model(_) => "model",
+            Self::Imported { .. } => "imported",
+        }
     }
 }
 
@@ -178,6 +286,42 @@ mod tests {
         let s = score(&c);
         assert!(s.score > 0.6, "{}", s.score);
         assert_eq!(s.reasons[0].1, "deleted 312 objects, 98% of its edits");
+    }
+
+    #[test]
+    fn readme_carries_this_scorecard() {
+        let readme = include_str!("../README.md");
+        for row in include_str!("score.rs")
+            .lines()
+            .filter_map(|l| l.strip_prefix("//! | "))
+        {
+            assert!(readme.contains(&format!("| {row}")), "README lacks: {row}");
+        }
+    }
+
+    #[test]
+    fn imported_scores_replace_the_scorecard_where_given() {
+        let mut c = base();
+        c.id = 7;
+        let s = Scoring::Imported {
+            scores: [(7, 0.9)].into_iter().collect(),
+            source: "x.csv".to_owned(),
+        };
+        let got = s.score(&c);
+        assert_eq!(got.score, 0.9);
+        assert_eq!(got.reasons[0].1, "score imported from x.csv");
+        c.id = 8;
+        let got = s.score(&c);
+        assert_eq!(got.score, score(&c).score);
+        assert!(got.reasons[0].1.starts_with("not in x.csv"));
+    }
+
+    #[test]
+    fn earlier_vandalism_reverts_raise_the_score() {
+        let c = base();
+        let mut again = base();
+        again.prior_vandalism_reverted = 1;
+        assert!(score(&again).score > score(&c).score);
     }
 
     #[test]

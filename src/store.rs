@@ -112,6 +112,7 @@ CREATE TABLE IF NOT EXISTS edits(
     prev_version INTEGER, prev_ts INTEGER, prev_tags TEXT, prev_lat_e7 INTEGER, prev_lon_e7 INTEGER,
     PRIMARY KEY(etype, eid, version)) WITHOUT ROWID;
 CREATE INDEX IF NOT EXISTS edits_ts ON edits(ts);
+CREATE INDEX IF NOT EXISTS edits_uid ON edits(uid, ts);
 CREATE TABLE IF NOT EXISTS elements(
     etype INTEGER NOT NULL, eid INTEGER NOT NULL, version INTEGER NOT NULL, ts INTEGER NOT NULL,
     visible INTEGER NOT NULL, lat_e7 INTEGER, lon_e7 INTEGER, tags TEXT NOT NULL, refs BLOB,

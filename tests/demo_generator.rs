@@ -412,12 +412,20 @@ fn files_are_well_formed_with_a_consistent_history() {
         "{total_snapshot}"
     );
 
-    // Volume and mix of ordinary mapping.
+    // Volume and mix of ordinary mapping: everything but the report week's incidents and the
+    // earlier weeks' (reverted) vandalism.
     let truth = incidents(&files);
     let injected: BTreeSet<i64> = truth
         .incidents
         .iter()
         .flat_map(|i| i.changesets.clone())
+        .chain(
+            truth
+                .earlier
+                .iter()
+                .filter(|e| e.vandalism)
+                .flat_map(|e| e.changesets.clone()),
+        )
         .collect();
     let total: u64 = s.weekly.iter().flatten().sum();
     let mut ordinary = [0u64; 3];
@@ -628,4 +636,69 @@ fn intensity_scales_ordinary_mapping_only() {
     let (two, _) = run(2.0);
     let ratio = two as f64 / one as f64;
     assert!((1.7..=2.3).contains(&ratio), "{one} at 1.0, {two} at 2.0");
+}
+
+#[test]
+fn earlier_vandalism_is_reverted_within_days_naming_its_changesets() {
+    let (_d, files) = scenario(&DemoOptions::default());
+    let s = scan(&files);
+    let truth = incidents(&files);
+    // Comments by changeset id, straight from the changeset dump.
+    let mut comments: BTreeMap<i64, String> = BTreeMap::new();
+    walk(open(&files.changesets), |e| {
+        if let Some(c) = e.tag("comment") {
+            comments.insert(e.int("id"), c.to_owned());
+        }
+    });
+    let time = |cs: &i64| {
+        chrono::DateTime::parse_from_rfc3339(&s.changesets[cs].2)
+            .unwrap()
+            .timestamp()
+    };
+    let report_monday = chrono::DateTime::parse_from_rfc3339("2026-11-23T00:00:00Z")
+        .unwrap()
+        .timestamp();
+    let vandalism: Vec<_> = truth.earlier.iter().filter(|e| e.vandalism).collect();
+    let mistakes: Vec<_> = truth.earlier.iter().filter(|e| !e.vandalism).collect();
+    assert!(vandalism.len() >= 12, "{}", vandalism.len());
+    assert!(mistakes.len() >= 10, "{}", mistakes.len());
+    let mut styles = BTreeSet::new();
+    for e in &truth.earlier {
+        let revert = e.reverted_by;
+        assert_eq!(comments.get(&revert), Some(&e.revert_comment));
+        assert!(
+            time(&revert) < report_monday,
+            "revert {revert} in the report week"
+        );
+        for cs in &e.changesets {
+            assert!(s.diff_changesets.contains(cs), "{cs} has no edits");
+            let gap = time(&revert) - time(cs);
+            assert!(
+                (0..5 * 86_400).contains(&gap),
+                "{cs} reverted after {gap} s"
+            );
+            if e.vandalism {
+                assert!(
+                    e.revert_comment.contains(&cs.to_string()),
+                    "{}",
+                    e.revert_comment
+                );
+            }
+        }
+        let reverter = s.changesets[&revert].0;
+        let author = s.changesets[&e.changesets[0]].0;
+        // Vandalism is reverted by someone else; a mistake by its own author.
+        assert_eq!(reverter == author, !e.vandalism, "{e:?}");
+        styles.insert(
+            e.revert_comment
+                .split_whitespace()
+                .next()
+                .unwrap()
+                .to_owned(),
+        );
+    }
+    assert!(
+        styles.len() >= 5,
+        "comments in several languages: {styles:?}"
+    );
 }

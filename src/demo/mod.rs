@@ -13,6 +13,7 @@ mod geography;
 mod incidents;
 mod names;
 mod people;
+mod reverts;
 mod sample;
 mod snapshot;
 mod world;
@@ -30,7 +31,9 @@ use activity::{Activity, Ordinary, Work};
 use geography::{Area, Geo, P};
 use names::Names;
 use people::{changeset_tags, People, Role, CHANGESET_BASE, DAY};
-use sample::{poisson, weighted};
+use sample::{mix, poisson, weighted};
+
+pub use reverts::EarlierCase;
 use snapshot::Builder;
 use world::{Bbox, ChangesetMeta, Session, World};
 
@@ -54,6 +57,8 @@ const HOURS: [f64; 24] = [
     3.0, 2.0, 1.5, 1.0, 0.6, 0.4, 0.4, 0.6, 1.0, 1.5, 2.0, 2.5, 3.0, 3.0, 3.0, 3.0, 3.0, 3.5, 4.0,
     4.5, 5.0, 5.0, 4.5, 4.0,
 ];
+/// Mixed with the seed for the earlier cases' random stream.
+const EARLIER_STREAM: u64 = 0x4541_524C_4945_5253;
 /// Mean new accounts per week at intensity 1.
 const NEWCOMERS_PER_WEEK: f64 = 3.0;
 
@@ -124,7 +129,11 @@ pub enum DemoError {
 /// The ground truth, also written to `incidents.json`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Incidents {
+    /// The report week's injected incidents.
     pub incidents: Vec<Incident>,
+    /// Earlier weeks' vandalism and honest mistakes, each already reverted.
+    #[serde(default)]
+    pub earlier: Vec<EarlierCase>,
 }
 
 /// One injected incident.
@@ -150,6 +159,10 @@ enum Task {
         task: incidents::Task,
         comment: Option<&'static str>,
         editor: &'static str,
+    },
+    /// Earlier vandalism, an honest mistake, or their reverts.
+    Earlier {
+        step: reverts::Step,
     },
 }
 
@@ -275,8 +288,13 @@ pub fn generate(input_dir: &Path, opts: &DemoOptions) -> Result<DemoFiles, DemoE
     let monday = (last_day - 6) * DAY;
     let (planned, mut state, burst_history) =
         incidents::plan(&mut rng, &mut people, &mut names, monday, period_start);
+    // The earlier cases draw from their own stream, so ordinary mapping keeps its character.
+    let mut erng = ChaCha8Rng::seed_from_u64(mix(opts.seed ^ EARLIER_STREAM));
+    let (earlier_planned, mut earlier, mut extra_history) =
+        reverts::plan(&mut erng, &mut people, &mut names, first_day, opts.weeks);
     people.assign_uids();
-    let mut hist = people::history(&mut rng, &people, &[burst_history], period_start);
+    extra_history.insert(0, burst_history);
+    let mut hist = people::history(&mut rng, &people, &extra_history, period_start);
 
     // The map at the start of the period.
     let mut world = World::new();
@@ -308,6 +326,17 @@ pub fn generate(input_dir: &Path, opts: &DemoOptions) -> Result<DemoFiles, DemoE
                     comment: p.comment,
                     editor: p.editor,
                 },
+            });
+        }
+    }
+    for p in earlier_planned {
+        let d = usize::try_from(p.created_at.div_euclid(DAY) - first_day).unwrap_or(usize::MAX);
+        if let Some(day) = incident_days.get_mut(d) {
+            day.push(Job {
+                created_at: p.created_at,
+                upload: p.upload,
+                user: p.user,
+                task: Task::Earlier { step: p.step },
             });
         }
     }
@@ -355,7 +384,11 @@ pub fn generate(input_dir: &Path, opts: &DemoOptions) -> Result<DemoFiles, DemoE
         let path = diffs_dir.join(format!("{}.osc.gz", xml::date_string(day_number)));
         let mut out = xml::DiffWriter::create(&path)?;
         for (job, id) in order {
-            let incident = matches!(job.task, Task::Incident { .. });
+            let incident = match job.task {
+                Task::Incident { .. } => true,
+                Task::Earlier { step } => reverts::is_damage(step),
+                Task::Ordinary { .. } => false,
+            };
             let mut s = Session::new(
                 &mut world,
                 &mut out,
@@ -378,6 +411,10 @@ pub fn generate(input_dir: &Path, opts: &DemoOptions) -> Result<DemoFiles, DemoE
                     incidents::run(*task, &mut s, &mut rng, &geo, &mut names, &mut state)?;
                     incidents::record(&mut state, *task, id, &s);
                 }
+                Task::Earlier { step } => {
+                    reverts::run(*step, &mut s, &mut erng, &geo, &mut earlier)?;
+                    reverts::record(&mut earlier, *step, id);
+                }
             }
             let (bbox, num_changes) = (s.bbox, s.changes);
             let tags = match job.task {
@@ -386,6 +423,10 @@ pub fn generate(input_dir: &Path, opts: &DemoOptions) -> Result<DemoFiles, DemoE
                         .then(|| work.activity.comment(&mut rng, work.area));
                     let editor = people.users[job.user as usize].editor;
                     changeset_tags(&mut rng, comment, editor)
+                }
+                Task::Earlier { step } => {
+                    let comment = reverts::comment(&mut earlier, step, &mut erng);
+                    changeset_tags(&mut erng, comment, people.users[job.user as usize].editor)
                 }
                 Task::Incident {
                     comment, editor, ..
@@ -424,6 +465,7 @@ pub fn generate(input_dir: &Path, opts: &DemoOptions) -> Result<DemoFiles, DemoE
     let incidents_path = input_dir.join("incidents.json");
     let truth = Incidents {
         incidents: incidents::finish(&state, &people, &geo),
+        earlier: reverts::finish(&earlier),
     };
     let mut text = serde_json::to_string_pretty(&truth).map_err(|source| DemoError::Json {
         path: incidents_path.clone(),
