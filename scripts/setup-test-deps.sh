@@ -1,7 +1,10 @@
 #!/usr/bin/env bash
 # Installs what the test suite needs beyond the Rust toolchain: Debian's Chromium, which the
-# browser test uses to open the generated report from disk. Safe to run again.
+# browser tests use to open the generated report from disk, and the npm package
+# playwright-core (pinned in tests/browser/package-lock.json) that drives it. No browser is
+# downloaded: tests/browser/check_report.mjs runs /usr/bin/chromium. Safe to run again.
 set -euo pipefail
+cd "$(dirname "$0")/.."
 if ! command -v chromium >/dev/null 2>&1; then
     SUDO=""
     [ "$(id -u)" -eq 0 ] || SUDO="sudo"
@@ -9,3 +12,11 @@ if ! command -v chromium >/dev/null 2>&1; then
     DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq chromium >/dev/null
 fi
 chromium --version
+# npm ci installs exactly the locked versions; skipped when the lock file it last installed
+# (kept in node_modules) is unchanged.
+stamp=tests/browser/node_modules/.installed-package-lock.json
+if ! cmp -s tests/browser/package-lock.json "$stamp"; then
+    (cd tests/browser && PLAYWRIGHT_SKIP_BROWSER_DOWNLOAD=1 npm ci --no-audit --no-fund --loglevel=error)
+    cp tests/browser/package-lock.json "$stamp"
+fi
+node -e "process.stdout.write('playwright-core ' + require('./tests/browser/node_modules/playwright-core/package.json').version + '\n')"

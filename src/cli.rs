@@ -579,7 +579,12 @@ fn evaluate(
     Ok(())
 }
 
-fn explain(db: &Path, id: i64, scoring: &Scoring, land: &crate::land::LandSource) -> Result<(), Failure> {
+fn explain(
+    db: &Path,
+    id: i64,
+    scoring: &Scoring,
+    land: &crate::land::LandSource,
+) -> Result<(), Failure> {
     let store = Store::open(db)?;
     let land = load_land(land)?;
     let ctx = FeatureContext::load(&store, &land, FeatureConfig::default())?;
@@ -708,15 +713,7 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 seed,
                 l2,
             };
-            evaluate(
-                &db,
-                &labels,
-                &scorers,
-                &out,
-                &land,
-                &opts,
-                &progress,
-            )
+            evaluate(&db, &labels, &scorers, &out, &land, &opts, &progress)
         }
         Command::Explain {
             db,

@@ -298,6 +298,7 @@ pub fn analyse(
                 edits: 0,
                 deletes: 0,
                 newcomer_edits: 0,
+                flagged_changesets: 0,
             })
             .collect();
         let mut week_sets: Vec<(HashSet<i64>, HashSet<i64>)> = vec![Default::default(); weeks];
@@ -341,6 +342,12 @@ pub fn analyse(
         counts.changesets = cs_rows.len() as u64;
         counts.mappers = mappers.len() as u64;
         counts.newcomers = week_sets[report_idx].1.len() as u64;
+        for (t, (changesets, _)) in trend.iter_mut().zip(&week_sets) {
+            t.flagged_changesets = changesets
+                .iter()
+                .filter(|id| scored.get(id).is_some_and(|s| s.0.score >= threshold))
+                .count() as u64;
+        }
         #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
         let baseline_counts = {
             let n = report_idx.max(1) as f64;

@@ -172,6 +172,9 @@ pub struct TrendPoint {
     pub edits: u64,
     pub deletes: u64,
     pub newcomer_edits: u64,
+    /// Changesets with an edit in the region that week scoring at or above the flag threshold
+    /// (the report week's value equals `counts.flagged_changesets`).
+    pub flagged_changesets: u64,
 }
 
 /// Everything the region page, its CSV and its GeoJSON need.

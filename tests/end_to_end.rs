@@ -1,6 +1,6 @@
 //! End-to-end: the real binary in a temporary folder, on the demo scenario and on bad input.
 
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Command, Output};
 use std::sync::OnceLock;
 
@@ -252,41 +252,6 @@ fn bad_input_fails_clearly_and_changes_nothing() {
         before,
         "the failed ingest changed the database"
     );
-}
-
-#[test]
-fn report_opens_in_a_browser_from_disk() {
-    let (dir, summary, _) = demo();
-    let slug = summary["regions"][0]["slug"].as_str().unwrap();
-    let page: PathBuf = dir.path().join("report").join(slug).join("index.html");
-    let profile = tempfile::tempdir().unwrap();
-    let out = Command::new("chromium")
-        .args([
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
-            "--no-first-run",
-            "--virtual-time-budget=2000",
-        ])
-        .arg(format!("--user-data-dir={}", profile.path().display()))
-        .arg("--dump-dom")
-        .arg(format!("file://{}", page.display()))
-        .output()
-        .expect("chromium is needed for this test: run scripts/setup-test-deps.sh");
-    let dom = String::from_utf8_lossy(&out.stdout);
-    let name = summary["regions"][0]["name"].as_str().unwrap();
-    assert!(
-        dom.contains(name),
-        "the page did not render the region name"
-    );
-    assert!(dom.contains("heat.png"));
-    let first_flagged = summary["regions"][0]["flagged_changesets"][0]["id"]
-        .as_i64()
-        .unwrap();
-    assert!(dom.contains(&first_flagged.to_string()));
 }
 
 #[test]

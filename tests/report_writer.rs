@@ -195,6 +195,7 @@ fn region(name: &str, slug: &str, hostile: bool) -> RegionReport {
             edits: if w == 47 { 1840 } else { 700 + (w * 53 % 190) },
             deletes: if w == 47 { 520 } else { 60 + (w * 31 % 45) },
             newcomer_edits: if w == 47 { 160 } else { 20 + w % 9 },
+            flagged_changesets: if w == 47 { 3 } else { w % 2 },
         })
         .collect();
     RegionReport {
@@ -652,7 +653,13 @@ fn region_page_has_cautions_before_the_lists() {
     assert!(page.contains(">3.2e-12<"));
     assert!(page
         .contains("<a href=\"https://www.openstreetmap.org/changeset/170001234\">170001234</a>"));
-    assert!(page.contains("aria-labelledby=\"trend-title trend-desc\""));
+    for chart in ["chart-deletions", "chart-newcomers", "chart-edits"] {
+        assert!(page.contains(&format!("aria-labelledby=\"{chart}-title {chart}-desc\"")));
+    }
+    // Deletions in the report week (520) against weeks of 60-104.
+    assert!(page.contains("520 deletions, above the usual range of"));
+    // Flagged changesets: 3 this week against a mean of 6 / 12 = 0.5 in the weeks before.
+    assert!(page.contains("<dd class=\"vs notable\">6× a usual week (≈ 0.5)</dd>"));
     // The filter tools are hidden until the script shows them.
     assert!(page.contains("id=\"changeset-tools\" hidden"));
     assert_eq!(page.matches("<tr class=\"flagged\">").count(), 3);

@@ -1,9 +1,10 @@
 //! The report's front page (`index.html`): the week, the cautions in brief, and one card per
-//! region with its headline figures, counts of outlier cells and flagged changesets, and a
-//! thumbnail of its first heat image.
+//! region with its headline figures, counts of outlier cells and flagged changesets, a
+//! thumbnail of its first heat image, and sparklines of its weekly edits and deletions.
 
 use std::fmt::Write as _;
 
+use super::chart::{sparkline_svg, Weekly};
 use super::region_page::{versus_usual, week_heading};
 use super::text::{encode_path_segment, encode_relative_path, escape_html, group_thousands};
 use super::{page, PageContext};
@@ -75,7 +76,52 @@ fn card(out: &mut String, r: &RegionReport, slug: &str) {
             group_thousands(value),
         );
     }
-    out.push_str("</dl>\n</article>\n");
+    out.push_str("</dl>\n");
+    if c.edits == 0 {
+        out.push_str(
+            "<p class=\"nothing\">Nothing happened here this week: no edits were recorded.</p>\n",
+        );
+    }
+    sparklines(out, r);
+    out.push_str("</article>\n");
+}
+
+/// Sparklines of the region's weekly edits and deletions, each against its usual range.
+fn sparklines(out: &mut String, r: &RegionReport) {
+    if r.trend.is_empty() {
+        return;
+    }
+    let weeks: Vec<&str> = r.trend.iter().map(|p| p.week.as_str()).collect();
+    let edits: Vec<u64> = r.trend.iter().map(|p| p.edits).collect();
+    let deletes: Vec<u64> = r.trend.iter().map(|p| p.deletes).collect();
+    let _ = write!(
+        out,
+        "<div class=\"sparks\"><p class=\"spark-head\">Last {} weeks; shaded: usual range</p>",
+        r.trend.len()
+    );
+    for (label, noun, class, values) in [
+        ("Edits", "edits", "edits", &edits),
+        ("Deletions", "deletions", "deletes", &deletes),
+    ] {
+        let series = Weekly {
+            id: class,
+            noun,
+            class,
+            weeks: &weeks,
+            values,
+        };
+        let _ = write!(
+            out,
+            "<div class=\"spark-row\"><span class=\"spark-label\" aria-hidden=\"true\">{label}\
+             </span>{}</div>",
+            sparkline_svg(
+                &series,
+                &r.summary.week,
+                &format!("{label} per week in {}", r.summary.name)
+            ),
+        );
+    }
+    out.push_str("</div>\n");
 }
 
 /// Renders the front page; `slugs` are the region folders, parallel to `regions`.

@@ -140,4 +140,140 @@ mod tests {
             assert_eq!(base64(input.as_bytes()), expected);
         }
     }
+
+    /// `#rrggbb` → relative luminance.
+    // Source: WCAG 2.x, definition of relative luminance
+    // (https://www.w3.org/TR/WCAG21/#dfn-relative-luminance), with the sRGB threshold 0.04045.
+    fn relative_luminance(hex: &str) -> f64 {
+        let hex = hex.trim_start_matches('#');
+        assert_eq!(hex.len(), 6, "colour {hex} is not #rrggbb");
+        let channel = |i: usize| {
+            let c = f64::from(u8::from_str_radix(&hex[i..i + 2], 16).unwrap_or_else(|e| {
+                panic!("colour {hex}: {e}");
+            })) / 255.0;
+            if c <= 0.04045 {
+                c / 12.92
+            } else {
+                ((c + 0.055) / 1.055).powf(2.4)
+            }
+        };
+        0.2126 * channel(0) + 0.7152 * channel(2) + 0.0722 * channel(4)
+    }
+
+    // Source: WCAG 2.x, definition of contrast ratio (L1 + 0.05) / (L2 + 0.05)
+    // (https://www.w3.org/TR/WCAG21/#dfn-contrast-ratio).
+    fn contrast(a: &str, b: &str) -> f64 {
+        let (la, lb) = (relative_luminance(a), relative_luminance(b));
+        (la.max(lb) + 0.05) / (la.min(lb) + 0.05)
+    }
+
+    /// The `--name: #rrggbb;` custom properties of the style sheet's `:root` block, and the rest
+    /// of the sheet.
+    fn palette() -> (Vec<(String, String)>, &'static str) {
+        let start = STYLE.find(":root {").expect(":root block");
+        let len = STYLE[start..].find('}').expect("end of :root");
+        let vars = STYLE[start..start + len]
+            .lines()
+            .filter_map(|l| {
+                let (name, value) = l.trim().strip_prefix("--")?.split_once(':')?;
+                let value = value.trim().trim_end_matches(';');
+                value
+                    .starts_with('#')
+                    .then(|| (name.to_owned(), value.to_owned()))
+            })
+            .collect();
+        (vars, &STYLE[start + len..])
+    }
+
+    #[test]
+    fn contrast_formula_matches_published_values() {
+        // Source: WCAG 2.x contrast ratio definition: black on white is 21:1, a colour on
+        // itself 1:1.
+        assert!((contrast("#000000", "#ffffff") - 21.0).abs() < 1e-9);
+        assert!((contrast("#56626e", "#56626e") - 1.0).abs() < 1e-12);
+        // From memory (widely cited, e.g. by WebAIM): #767676 is the lightest grey with at
+        // least 4.5:1 on white (4.54:1); #777777 falls just short (4.48:1).
+        assert!((contrast("#767676", "#ffffff") - 4.54).abs() < 0.005);
+        assert!(contrast("#777777", "#ffffff") < 4.5);
+    }
+
+    #[test]
+    fn palette_meets_wcag_aa_contrast() {
+        let (vars, rest) = palette();
+        let colour = |name: &str| -> &str {
+            vars.iter()
+                .find(|(n, _)| n == name)
+                .map(|(_, v)| v.as_str())
+                .unwrap_or_else(|| panic!("--{name} is not a colour in :root"))
+        };
+        // WCAG 2.x success criterion 1.4.3: text at least 4.5:1 against its background.
+        let text = [
+            ("ink", "bg"),
+            ("ink", "surface"),
+            ("ink", "note-bg"),
+            ("ink", "flag-soft"),
+            ("ink", "head-bg"),
+            ("ink", "accent-soft"),
+            ("ink", "usual"),
+            ("muted", "bg"),
+            ("muted", "surface"),
+            ("muted", "head-bg"),
+            ("muted", "flag-soft"),
+            ("muted", "note-bg"),
+            ("muted", "usual"),
+            ("accent", "bg"),
+            ("accent", "surface"),
+            ("accent", "flag-soft"),
+            ("flag", "bg"),
+            ("flag", "surface"),
+            ("flag", "flag-soft"),
+        ];
+        // Success criterion 1.4.11: graphics a reader needs (chart lines and dots, the dashed
+        // mean, the focus ring, form control borders, the flagged-row stripe) at least 3:1.
+        let graphics = [
+            ("edits", "surface"),
+            ("deletes", "surface"),
+            ("newcomers", "surface"),
+            ("edits", "usual"),
+            ("deletes", "usual"),
+            ("newcomers", "usual"),
+            ("edits", "accent-soft"),
+            ("deletes", "accent-soft"),
+            ("newcomers", "accent-soft"),
+            ("usual-mean", "surface"),
+            ("usual-mean", "usual"),
+            ("focus", "bg"),
+            ("focus", "surface"),
+            ("focus", "flag-soft"),
+            ("control-line", "surface"),
+            ("flag", "flag-soft"),
+        ];
+        let mut failures = Vec::new();
+        for (pairs, minimum) in [(&text[..], 4.5), (&graphics[..], 3.0)] {
+            for (fg, bg) in pairs {
+                let ratio = contrast(colour(fg), colour(bg));
+                if ratio < minimum {
+                    failures.push(format!("--{fg} on --{bg}: {ratio:.2} < {minimum}"));
+                }
+            }
+        }
+        assert!(failures.is_empty(), "{failures:#?}");
+
+        // Every colour lives in :root, so the pairs above cover the sheet: no literal colour
+        // (#rgb, #rrggbb, rgb(), hsl()) after it.
+        let bytes = rest.as_bytes();
+        for (i, _) in rest.match_indices('#') {
+            let digits = bytes[i + 1..]
+                .iter()
+                .take_while(|b| b.is_ascii_alphanumeric() || **b == b'-' || **b == b'_')
+                .count();
+            let word = &rest[i + 1..i + 1 + digits];
+            let is_colour =
+                matches!(word.len(), 3 | 4 | 6 | 8) && word.bytes().all(|b| b.is_ascii_hexdigit());
+            assert!(!is_colour, "literal colour #{word} outside :root");
+        }
+        for f in ["rgb(", "rgba(", "hsl(", "hsla("] {
+            assert!(!rest.contains(f), "literal colour {f} outside :root");
+        }
+    }
 }

@@ -7,14 +7,14 @@ use std::fmt::Write as _;
 use chrono::Duration;
 use h3o::Resolution;
 
-use super::chart::trend_svg;
+use super::chart::{weekly_svg, Weekly};
 use super::text::{
     encode_path_segment, encode_relative_path, escape_html, format_mean, format_probability,
     format_ratio, group_thousands,
 };
 use super::{page, PageContext};
 use crate::model::IsoWeek;
-use crate::summary::{ChangesetRow, Incident, Outlier, RegionReport};
+use crate::summary::{ChangesetRow, Incident, Outlier, RegionReport, TrendPoint};
 
 /// Mappers and changesets listed in an outlier row before the rest fold into "more".
 const LIST_INLINE: usize = 5;
@@ -193,29 +193,72 @@ fn header(out: &mut String, r: &RegionReport) {
     );
 }
 
+/// The weeks of the trend before the report week, oldest first.
+fn history(r: &RegionReport) -> &[TrendPoint] {
+    let at = r
+        .trend
+        .iter()
+        .rposition(|p| p.week == r.summary.week)
+        .unwrap_or(r.trend.len().saturating_sub(1));
+    &r.trend[..at]
+}
+
+/// The mean of a trend measure over the weeks before the report week.
+fn history_mean(r: &RegionReport, value: fn(&TrendPoint) -> u64) -> f64 {
+    let h = history(r);
+    if h.is_empty() {
+        return f64::NAN;
+    }
+    #[allow(
+        clippy::cast_precision_loss,
+        reason = "counts and weeks are far below 2^52"
+    )]
+    let mean = h.iter().map(|p| value(p) as f64).sum::<f64>() / h.len() as f64;
+    mean
+}
+
 fn glance(out: &mut String, r: &RegionReport, ctx: &PageContext<'_>) {
     let s = &r.summary;
     let c = &s.counts;
     let b = &s.baseline_counts;
-    let _ =
-        write!(
+    out.push_str(
+        "<section id=\"glance\" aria-labelledby=\"glance-h\">\n<h2 id=\"glance-h\">This week at \
+         a glance</h2>\n",
+    );
+    if c.edits == 0 {
+        let _ = writeln!(
+            out,
+            "<p class=\"summary-line nothing\"><strong>Nothing happened here this week.</strong> \
+             No edits were recorded in this region in week {}, so no cell was tested and no \
+             changeset is listed.</p>",
+            escape_html(&s.week),
+        );
+    }
+    let _ = write!(
         out,
-        "<section id=\"glance\" aria-labelledby=\"glance-h\">\n<h2 id=\"glance-h\">This week at a \
-         glance</h2>\n<p class=\"summary-line\">{edits} edits in {cs} changesets by {mappers} \
+        "<p class=\"summary-line\">{edits} edits in {cs} changesets by {mappers} \
          mappers. <strong>{cells} {cell_word} stood out</strong> and <strong>{flagged} {cs_word} \
          {were} flagged</strong> for a closer look.</p>\n<dl class=\"figures\">\n",
         edits = group_thousands(c.edits),
         cs = group_thousands(c.changesets),
         mappers = group_thousands(c.mappers),
         cells = group_thousands(c.outlier_cells),
-        cell_word = if c.outlier_cells == 1 { "cell" } else { "cells" },
+        cell_word = if c.outlier_cells == 1 {
+            "cell"
+        } else {
+            "cells"
+        },
         flagged = group_thousands(c.flagged_changesets),
         cs_word = if c.flagged_changesets == 1 {
             "changeset"
         } else {
             "changesets"
         },
-        were = if c.flagged_changesets == 1 { "was" } else { "were" },
+        were = if c.flagged_changesets == 1 {
+            "was"
+        } else {
+            "were"
+        },
     );
     let compared = [
         ("Edits", c.edits, b.edits),
@@ -232,22 +275,31 @@ fn glance(out: &mut String, r: &RegionReport, ctx: &PageContext<'_>) {
             group_thousands(value),
         );
     }
+    let flagged_weeks = u32::try_from(history(r).len()).unwrap_or(u32::MAX);
+    let (class, text) = versus_usual(
+        c.flagged_changesets,
+        history_mean(r, |p| p.flagged_changesets),
+        flagged_weeks,
+        "a usual week",
+    );
     let _ = write!(
         out,
         "<div class=\"figure\"><dt>Flagged changesets</dt><dd class=\"value\">{}</dd>\
-         <dd class=\"vs\">score {:.2} or higher; see below</dd></div>\n\
+         <dd class=\"{class}\">{text}</dd></div>\n\
          <div class=\"figure\"><dt>Outlier cells</dt><dd class=\"value\">{}</dd>\
-         <dd class=\"vs\">tested at a {} false discovery rate</dd></div>\n</dl>\n",
+         <dd class=\"vs\">each cell against its own usual week ({} false discovery rate)\
+         </dd></div>\n</dl>\n",
         group_thousands(c.flagged_changesets),
-        ctx.flag_threshold,
         group_thousands(c.outlier_cells),
         percent(ctx.fdr),
     );
     let _ = write!(
         out,
         "<p class=\"muted small\">“Usual week” is the mean of the previous {} weeks. Newcomers \
-         are mappers with a young account.</p>\n</section>\n",
-        b.weeks
+         are mappers with a young account. Flagged changesets score {:.2} or higher, in earlier \
+         weeks too. The charts under <a href=\"#trend\">Week by week</a> show each week against \
+         its usual range.</p>\n</section>\n",
+        b.weeks, ctx.flag_threshold,
     );
 }
 
@@ -346,16 +398,20 @@ fn incident_row(out: &mut String, i: &Incident, ctx: &PageContext<'_>) {
 }
 
 fn incidents(out: &mut String, r: &RegionReport, ctx: &PageContext<'_>) {
+    out.push_str(
+        "<section id=\"incidents\" aria-labelledby=\"incidents-h\">\n<h2 id=\"incidents-h\">\
+         Incidents</h2>\n",
+    );
     if r.summary.incidents.is_empty() {
+        out.push_str("<p>No incidents this week: no cell stood out.</p>\n</section>\n");
         return;
     }
     out.push_str(
-        "<section id=\"incidents\" aria-labelledby=\"incidents-h\">\n<h2 id=\"incidents-h\">\
-         Incidents</h2>\n<p class=\"muted\">Neighbouring cells of one kind that share changesets, \
+        "<p class=\"muted\">Neighbouring cells of one kind that share changesets, \
          taken together; strongest evidence first. The box is west, south – east, north in \
          degrees.</p>\n<div class=\"table-scroll\" tabindex=\"0\" role=\"region\" \
          aria-labelledby=\"incidents-h\">\n<table class=\"data stack outliers\" id=\"incident-table\">\n\
-         <thead><tr><th scope=\"col\">What</th><th scope=\"col\">Place · box</th>\
+         <caption class=\"sr-only\">Incidents, strongest evidence first</caption>\n<thead><tr><th scope=\"col\">What</th><th scope=\"col\">Place · box</th>\
          <th scope=\"col\" class=\"num\">Cells</th><th scope=\"col\" class=\"num\">Observed vs expected</th>\
          <th scope=\"col\" class=\"num\">q</th><th scope=\"col\">Changesets</th>\
          <th scope=\"col\">Mappers</th></tr></thead>\n<tbody>\n",
@@ -383,7 +439,9 @@ fn outliers(out: &mut String, r: &RegionReport, ctx: &PageContext<'_>) {
         "<p class=\"muted\">Strongest evidence first. “Observed vs expected” compares this week's \
          count with what a usual week in that cell looks like.</p>\n\
          <div class=\"table-scroll\" tabindex=\"0\" role=\"region\" aria-labelledby=\"cells-h\">\n\
-         <table class=\"data stack outliers\" id=\"outlier-table\">\n<thead><tr>\
+         <table class=\"data stack outliers\" id=\"outlier-table\">\n\
+         <caption class=\"sr-only\">Cells that stood out, strongest evidence first</caption>\n\
+         <thead><tr>\
          <th scope=\"col\">What · measure</th><th scope=\"col\">Cell · lat, lon</th>\
          <th scope=\"col\" class=\"num\">Observed vs expected</th>\
          <th scope=\"col\" class=\"num\">Ratio</th><th scope=\"col\" class=\"num\">p</th>\
@@ -402,12 +460,16 @@ fn changeset_row(out: &mut String, row: &ChangesetRow, ctx: &PageContext<'_>) {
     } else {
         ""
     };
-    let _ = write!(out, "<tr{class}><td class=\"id\" data-v=\"{}\">", row.id);
+    let _ = write!(
+        out,
+        "<tr{class}><th scope=\"row\" class=\"id\" data-v=\"{}\">",
+        row.id
+    );
     changeset_link(out, ctx, row.id);
     if row.flagged {
         out.push_str(" <span class=\"badge\">flagged</span>");
     }
-    out.push_str("</td><td data-label=\"Mapper\">");
+    out.push_str("</th><td data-label=\"Mapper\">");
     user_link(out, ctx, &row.user, Some(row.uid));
     let age = if row.account_age_days.is_finite() {
         format!("{:.0}", row.account_age_days.max(0.0))
@@ -459,7 +521,9 @@ fn changesets(out: &mut String, r: &RegionReport, ctx: &PageContext<'_>) {
          <label class=\"check\"><input type=\"checkbox\" id=\"cs-flagged\"> Flagged only</label>\
          <span id=\"cs-status\" class=\"muted\" aria-live=\"polite\"></span></div>\n\
          <div class=\"table-scroll\" tabindex=\"0\" role=\"region\" aria-labelledby=\"changesets-h\">\n\
-         <table class=\"data stack changesets\" id=\"changesets\">\n<thead><tr>\
+         <table class=\"data stack changesets\" id=\"changesets\">\n\
+         <caption class=\"sr-only\">Changesets this week in {name}, highest score first</caption>\n\
+         <thead><tr>\
          <th scope=\"col\" data-sort=\"num\">Changeset</th>\
          <th scope=\"col\" data-sort=\"text\">Mapper</th>\
          <th scope=\"col\" data-sort=\"num\" class=\"num\">Account age, days</th>\
@@ -472,6 +536,7 @@ fn changesets(out: &mut String, r: &RegionReport, ctx: &PageContext<'_>) {
         total = group_thousands(r.changesets.len() as u64),
         flagged = group_thousands(flagged as u64),
         threshold = ctx.flag_threshold,
+        name = escape_html(&r.summary.name),
     );
     for row in &r.changesets {
         changeset_row(out, row, ctx);
@@ -489,32 +554,92 @@ fn changesets(out: &mut String, r: &RegionReport, ctx: &PageContext<'_>) {
     );
 }
 
+/// One weekly chart of the region page.
+struct Chart {
+    /// Element id prefix.
+    id: &'static str,
+    /// What is counted, for the chart's text alternative.
+    noun: &'static str,
+    /// CSS class of the line.
+    class: &'static str,
+    caption: &'static str,
+    value: fn(&TrendPoint) -> u64,
+}
+
+/// The weekly charts, in the order shown.
+const CHARTS: [Chart; 3] = [
+    Chart {
+        id: "chart-deletions",
+        noun: "deletions",
+        class: "deletes",
+        caption: "Deletions per week",
+        value: |p| p.deletes,
+    },
+    Chart {
+        id: "chart-newcomers",
+        noun: "edits by newcomers",
+        class: "newcomers",
+        caption: "Edits by newcomers per week",
+        value: |p| p.newcomer_edits,
+    },
+    Chart {
+        id: "chart-edits",
+        noun: "edits",
+        class: "edits",
+        caption: "All edits per week",
+        value: |p| p.edits,
+    },
+];
+
 fn trend(out: &mut String, r: &RegionReport) {
-    out.push_str(
+    let weeks = history(r).len();
+    let _ = write!(
+        out,
         "<section id=\"trend\" aria-labelledby=\"trend-h\">\n<h2 id=\"trend-h\">Week by week</h2>\n\
-         <figure class=\"chart\">\n",
+         <p class=\"muted\">Each chart shows one count for the region over the last {n} weeks. \
+         The shaded band is the usual range: the mean of the {weeks} weeks before the report week \
+         plus or minus two standard deviations, drawn across the chart; the dashed line is the \
+         mean. The shaded column is the report week. The band is a rough guide for the whole \
+         region; the outlier tests above work cell by cell.</p>\n<div class=\"charts\">\n",
+        n = r.trend.len(),
     );
-    out.push_str(&trend_svg(&r.trend, &r.summary.week, &r.summary.name));
-    out.push_str(
-        "\n<figcaption>Edits and deletions per week; the shaded column is the report week.\
-         </figcaption>\n</figure>\n",
-    );
+    let labels: Vec<&str> = r.trend.iter().map(|p| p.week.as_str()).collect();
+    for chart in &CHARTS {
+        let values: Vec<u64> = r.trend.iter().map(chart.value).collect();
+        let series = Weekly {
+            id: chart.id,
+            noun: chart.noun,
+            class: chart.class,
+            weeks: &labels,
+            values: &values,
+        };
+        let _ = writeln!(
+            out,
+            "<figure class=\"chart\">\n<figcaption>{}</figcaption>\n{}\n</figure>",
+            chart.caption,
+            weekly_svg(&series, &r.summary.week, &r.summary.name),
+        );
+    }
+    out.push_str("</div>\n");
     if !r.trend.is_empty() {
         out.push_str(
             "<details><summary>Show the numbers</summary>\n<table class=\"data compact\">\
+             <caption class=\"sr-only\">Counts per week, oldest first</caption>\
              <thead><tr><th scope=\"col\">Week</th><th scope=\"col\" class=\"num\">Edits</th>\
              <th scope=\"col\" class=\"num\">Deletions</th>\
-             <th scope=\"col\" class=\"num\">Edits by newcomers</th></tr></thead>\n<tbody>\n",
+             <th scope=\"col\" class=\"num\">Edits by newcomers</th>\
+             <th scope=\"col\" class=\"num\">Flagged changesets</th></tr></thead>\n<tbody>\n",
         );
         for p in &r.trend {
             let _ = writeln!(
                 out,
                 "<tr><th scope=\"row\">{}</th><td class=\"num\">{}</td><td class=\"num\">{}</td>\
-                 <td class=\"num\">{}</td></tr>",
+                 <td class=\"num\">{}</td><td class=\"num\">{}</td></tr>",
                 escape_html(&p.week),
                 group_thousands(p.edits),
                 group_thousands(p.deletes),
                 group_thousands(p.newcomer_edits),
+                group_thousands(p.flagged_changesets),
             );
         }
         out.push_str("</tbody></table>\n</details>\n");
