@@ -6,7 +6,8 @@ use std::path::{Path, PathBuf};
 use clap::{Args, Parser, Subcommand};
 
 use crate::demo::{self, DemoOptions};
-use crate::ingest::{self, IngestError, IngestSummary};
+use crate::ingest::replication::SequenceRange;
+use crate::ingest::{self, IngestError, IngestOptions, IngestSummary};
 use crate::model::IsoWeek;
 use crate::pipeline::{self, PipelineError, ReportOptions};
 use crate::progress::Progress;
@@ -41,12 +42,16 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Read OSM files (changeset metadata, osmChange diffs, .osm snapshots; plain, gzip or bzip2) into the state database.
+    /// Read OSM files (changeset metadata, osmChange diffs, .osm and .osm.pbf snapshots; XML plain, gzip or bzip2; replication folders) into the state database.
     Ingest {
-        /// State database (created if missing).
+        /// State database (created if missing); its node-location index is kept beside it.
         #[arg(long)]
         db: PathBuf,
-        /// Files or folders (folders are searched for .osc/.osm files).
+        /// Only these sequence numbers of replication folders, e.g. 4100-4200.
+        #[arg(long)]
+        sequences: Option<SequenceRange>,
+        /// Files or folders (folders are searched for .osc/.osm/.osm.pbf files; a folder in
+        /// the replication layout AAA/BBB/CCC.osc.gz is read in sequence order).
         #[arg(required = true)]
         inputs: Vec<PathBuf>,
     },
@@ -195,7 +200,10 @@ fn ingest_line(s: &IngestSummary) -> String {
         s.skipped_elements,
         s.elapsed_ms as f64 / 1000.0,
         rate
-    )
+    ) + &match s.replication.iter().map(|r| r.gaps.len()).sum::<usize>() {
+        0 => String::new(),
+        gaps => format!("; {gaps} sequence gap(s) in replication folders"),
+    }
 }
 
 fn report(db: &Path, out: &Path, opts: &ReportOptions, progress: &Progress) -> Result<(), Failure> {
@@ -226,9 +234,14 @@ fn report(db: &Path, out: &Path, opts: &ReportOptions, progress: &Progress) -> R
 pub fn run(cli: Cli) -> Result<(), Failure> {
     let progress = Progress::new(cli.quiet);
     match cli.command {
-        Command::Ingest { db, inputs } => {
+        Command::Ingest {
+            db,
+            sequences,
+            inputs,
+        } => {
             let mut store = Store::open(&db)?;
-            let s = ingest::ingest(&mut store, &inputs, &progress)?;
+            let s =
+                ingest::ingest_with(&mut store, &inputs, &IngestOptions { sequences }, &progress)?;
             progress.note(&ingest_line(&s));
             Ok(())
         }

@@ -16,6 +16,7 @@ pub mod ingest;
 pub mod land;
 pub mod locate;
 pub mod model;
+pub mod node_index;
 pub mod pipeline;
 pub mod progress;
 pub mod regions;
