@@ -669,6 +669,45 @@ mod tests {
         assert_eq!(s.skipped().unwrap(), vec![("x".to_owned(), 5)]);
     }
 
+    /// A database from before the node-location index: node positions only in `elements`,
+    /// no generation in `meta`. Opening it builds the index from them.
+    #[test]
+    fn positions_in_elements_are_moved_to_the_index_on_open() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("old.db");
+        {
+            let s = Store::open(&path).unwrap();
+            s.conn()
+                .execute_batch(
+                    "DELETE FROM meta WHERE key = 'nodes_generation';
+                     INSERT INTO elements VALUES(0, 7, 3, 0, 1, 452000000, -336000000, '', NULL);
+                     INSERT INTO elements VALUES(0, 8, 1, 0, 0, NULL, NULL, '', NULL);
+                     INSERT INTO elements VALUES(1, 7, 1, 0, 1, NULL, NULL, '', NULL);",
+                )
+                .unwrap();
+        }
+        let s = Store::open(&path).unwrap();
+        let idx = s.node_index().unwrap();
+        assert_eq!(idx.len(), 1);
+        let e = idx.get(7).unwrap().unwrap();
+        assert_eq!(
+            (e.coord.lat_e7(), e.coord.lon_e7(), e.version),
+            (452_000_000, -336_000_000, 3)
+        );
+        let generation: String = s
+            .conn()
+            .query_row(
+                "SELECT value FROM meta WHERE key = 'nodes_generation'",
+                [],
+                |r| r.get(0),
+            )
+            .unwrap();
+        assert_eq!(generation, "1");
+        // Opened again: nothing more to do.
+        drop(s);
+        assert_eq!(Store::open(&path).unwrap().node_index().unwrap().len(), 1);
+    }
+
     #[test]
     fn second_writer_is_refused() {
         let dir = tempfile::tempdir().unwrap();

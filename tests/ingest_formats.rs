@@ -466,6 +466,37 @@ fn failed_ingest_leaves_database_and_index_unchanged() {
     assert_eq!(index_files(dir.path()), files_before);
 }
 
+#[test]
+fn damaged_pbf_files_are_refused_with_their_place() {
+    let dir = tempfile::tempdir().unwrap();
+    let good = std::fs::read(fixture("real/Helsinki.osm.pbf")).unwrap();
+    let mut flipped = good.clone();
+    // Byte 300 000 lies in the compressed data of the fifth blob, which starts at byte 265 257.
+    flipped[300_000..300_040].fill(b'x');
+    for (name, bytes, expect) in [
+        (
+            "truncated.osm.pbf",
+            &good[..500],
+            "PBF blob 1 (following the blob at byte 0)",
+        ),
+        ("flipped.osm.pbf", &flipped[..], "PBF blob 4 at byte 265257"),
+    ] {
+        let path = dir.path().join(name);
+        std::fs::write(&path, bytes).unwrap();
+        let db = dir.path().join(format!("{name}.db"));
+        let out = bin()
+            .args(["ingest", "--db"])
+            .arg(&db)
+            .arg(&path)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(2), "{name}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(name) && err.contains(expect), "{name}: {err}");
+        assert!(dump(&db).is_empty(), "{name}: nothing may be ingested");
+    }
+}
+
 /// Kills ingests at many points; each time the database and its index must open and agree
 /// (either nothing or everything of the ingest), and a rerun must end exactly like an
 /// uninterrupted run.

@@ -129,14 +129,22 @@ fn io_err(path: &Path) -> impl Fn(std::io::Error) -> IngestError + '_ {
 /// A reader that adds the bytes it reads to a shared counter (for the progress bar).
 struct Counting<'a, R> {
     inner: R,
-    count: &'a AtomicU64,
+    count: Option<&'a AtomicU64>,
 }
 
 impl<R: Read> Read for Counting<'_, R> {
     fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
         let n = self.inner.read(buf)?;
-        self.count.fetch_add(n as u64, Ordering::Relaxed);
+        if let Some(c) = self.count {
+            c.fetch_add(n as u64, Ordering::Relaxed);
+        }
         Ok(n)
+    }
+}
+
+impl<R: std::io::Seek> std::io::Seek for Counting<'_, R> {
+    fn seek(&mut self, pos: std::io::SeekFrom) -> std::io::Result<u64> {
+        self.inner.seek(pos)
     }
 }
 
@@ -164,14 +172,13 @@ impl<R: Read> Read for Capped<R> {
 /// # Errors
 /// When the file cannot be opened.
 pub fn open_decompressed(path: &Path) -> Result<Box<dyn BufRead + Send>, IngestError> {
-    static UNCOUNTED: AtomicU64 = AtomicU64::new(0);
-    open_counted(path, &UNCOUNTED)
+    open_counted(path, None)
 }
 
 /// Like [`open_decompressed`], adding the compressed bytes read to `count`.
 fn open_counted<'a>(
     path: &Path,
-    count: &'a AtomicU64,
+    count: Option<&'a AtomicU64>,
 ) -> Result<Box<dyn BufRead + Send + 'a>, IngestError> {
     let file = File::open(path).map_err(io_err(path))?;
     let size = file.metadata().map_err(io_err(path))?.len();
@@ -354,8 +361,15 @@ const QUEUED_BATCHES: usize = 4;
 
 /// What a parser thread sends the writer about one input.
 enum Msg {
-    Batch { items: Vec<Item>, bytes: u64 },
-    Done(Option<Root>),
+    Batch {
+        items: Vec<Item>,
+        bytes: u64,
+    },
+    /// The input was read to its end; `bytes` not yet reported.
+    Done {
+        root: Option<Root>,
+        bytes: u64,
+    },
     Failed(IngestError),
 }
 
@@ -463,7 +477,10 @@ pub fn ingest_with(
                     }
                     bar.inc(bytes);
                 }
-                Ok(Msg::Done(root)) => break root,
+                Ok(Msg::Done { root, bytes }) => {
+                    bar.inc(bytes);
+                    break root;
+                }
                 Ok(Msg::Failed(e)) => return Err(e),
                 Err(_) => {
                     return Err(IngestError::Format {
@@ -632,19 +649,10 @@ fn parse_input(input: &Input, sender: &SyncSender<Msg>) {
         })
     });
     let msg = match result {
-        Ok(root) => {
-            let rest = input.size.saturating_sub(reported);
-            if sender
-                .send(Msg::Batch {
-                    items: Vec::new(),
-                    bytes: rest,
-                })
-                .is_err()
-            {
-                return;
-            }
-            Msg::Done(root)
-        }
+        Ok(root) => Msg::Done {
+            root,
+            bytes: input.size.saturating_sub(reported),
+        },
         Err(e) => Msg::Failed(e),
     };
     // A closed queue means the writer stopped; nothing more to say.
@@ -687,7 +695,7 @@ fn parse_xml(
     bytes: &AtomicU64,
     send: &mut dyn FnMut(Vec<Item>) -> Result<(), SinkError>,
 ) -> Result<Option<Root>, IngestError> {
-    let reader = open_counted(path, bytes)?;
+    let reader = open_counted(path, Some(bytes))?;
     let mut sink = BatchSink {
         items: Vec::with_capacity(BATCH_ITEMS),
         send,

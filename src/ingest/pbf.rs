@@ -43,19 +43,29 @@ pub fn read_pbf(
         path: path.to_owned(),
         message,
     };
-    let mut blobs = BlobReader::new(BufReader::with_capacity(
+    // Seekable, so that each blob knows its byte offset for error messages.
+    let mut blobs = BlobReader::new_seekable(BufReader::with_capacity(
         1 << 20,
         Counting {
             inner: file,
-            count: bytes_read,
+            count: Some(bytes_read),
         },
-    ));
+    ))
+    .map_err(|e| fmt(e.to_string()))?;
     let mut index = 0usize;
+    let mut last_offset = 0u64;
     let mut seen_header = false;
     loop {
         let mut group = Vec::with_capacity(BLOBS_PER_GROUP);
         for blob in blobs.by_ref().take(BLOBS_PER_GROUP) {
-            let blob = blob.map_err(|e| fmt(format!("PBF blob {}: {e}", index + group.len())))?;
+            let blob = blob.map_err(|e| {
+                fmt(format!(
+                    "PBF blob {} (following the blob at byte {}): {e}",
+                    index + group.len(),
+                    last_offset
+                ))
+            })?;
+            last_offset = blob.offset().map_or(last_offset, |o| o.0);
             group.push(blob);
         }
         if group.is_empty() {
@@ -69,7 +79,12 @@ pub fn read_pbf(
                     decode_blob(blob, index + i == 0 && !seen_header)
                 }))
                 .unwrap_or_else(|_| Err("the PBF decoder failed on malformed data".to_owned()))
-                .map_err(|m| format!("PBF blob {}: {m}", index + i))
+                .map_err(|m| {
+                    let at = blob
+                        .offset()
+                        .map_or(String::new(), |o| format!(" at byte {}", o.0));
+                    format!("PBF blob {}{at}: {m}", index + i)
+                })
             })
             .collect();
         for d in decoded {

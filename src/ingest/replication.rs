@@ -6,6 +6,7 @@
 //! are reported as gaps (not fatal: the rest is ingested). The sequence number is
 //! `AAA * 1 000 000 + BBB * 1 000 + CCC`.
 
+use std::io::Read;
 use std::path::{Path, PathBuf};
 use std::str::FromStr;
 
@@ -47,6 +48,9 @@ impl FromStr for SequenceRange {
         Ok(Self { first, last })
     }
 }
+
+/// Longest accepted state file; real ones are about 100 bytes.
+const MAX_STATE_BYTES: u64 = 4096;
 
 /// The largest sequence number the three-level layout can hold.
 const MAX_SEQUENCE: u64 = 999_999_999;
@@ -115,18 +119,24 @@ pub struct State {
 /// # Errors
 /// When the file cannot be read or lacks a valid `sequenceNumber` or `timestamp`.
 pub fn read_state(path: &Path) -> Result<State, IngestError> {
-    let text = std::fs::read_to_string(path).map_err(|source| IngestError::Io {
+    let io = |source| IngestError::Io {
         path: path.to_owned(),
         source,
-    })?;
+    };
     let fmt = |message: String| IngestError::Format {
         path: path.to_owned(),
         message,
     };
-    if text.len() > 4096 {
-        return Err(fmt(
-            "a state file of more than 4 KiB is not a replication state".to_owned(),
-        ));
+    let mut text = String::new();
+    std::fs::File::open(path)
+        .map_err(io)?
+        .take(MAX_STATE_BYTES + 1)
+        .read_to_string(&mut text)
+        .map_err(io)?;
+    if text.len() as u64 > MAX_STATE_BYTES {
+        return Err(fmt(format!(
+            "a state file of more than {MAX_STATE_BYTES} bytes is not a replication state"
+        )));
     }
     let (mut sequence, mut timestamp) = (None, None);
     for (n, line) in text.lines().enumerate() {
