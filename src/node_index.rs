@@ -274,7 +274,8 @@ impl NodeIndex {
             return Ok(None);
         };
         let (base, first) = self.dir[b];
-        let Ok(offset) = u32::try_from(id - base) else {
+        // Ids span the whole i64 range (negative ones too), so the difference may overflow.
+        let Some(offset) = id.checked_sub(base).and_then(|d| u32::try_from(d).ok()) else {
             return Ok(None);
         };
         let mut last = self.last.borrow_mut();
@@ -410,7 +411,7 @@ impl IndexWriter {
     fn push(&mut self, id: i64, e: NodeEntry) -> Result<(), NodeIndexError> {
         let offset = match self.dir.last() {
             Some(&(base, _)) if self.block_len < BLOCK_ENTRIES && id > base => {
-                u32::try_from(id - base).ok()
+                id.checked_sub(base).and_then(|d| u32::try_from(d).ok())
             }
             _ => None,
         };
@@ -816,7 +817,7 @@ mod tests {
         let mut tx = NodeIndexTx::with_run_entries(&prefix, 0, 60_000).unwrap();
         for i in 0..n {
             let id = if i % 1000 == 0 {
-                rng.gen_range(0..i64::MAX / 2)
+                rng.gen_range(i64::MIN..i64::MAX)
             } else {
                 rng.gen_range(1..13_000_000_000i64)
             };
