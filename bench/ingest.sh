@@ -18,6 +18,7 @@ echo "file: $n elements, $(stat -c %s "$work/week.osc.gz") bytes gzip, $(gzip -d
 
 timed() { # label, command...: prints "label | seconds | peak MiB"
     local label=$1; shift
+    sync # the previous run's dirty pages would otherwise be written back during this one
     /usr/bin/time -f "%e %M" -o "$work/t" "$@" > /dev/null 2> "$work/err" || { cat "$work/err"; exit 1; }
     read -r secs kb < "$work/t"
     printf '| %s | %s s | %d MiB |\n' "$label" "$secs" $((kb / 1024))
