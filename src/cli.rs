@@ -9,7 +9,8 @@ use crate::demo::{self, DemoOptions};
 use crate::evaluate::{EvaluateError, EvaluateOptions};
 use crate::features::{FeatureConfig, FeatureContext, FEATURES};
 use crate::fit::{FitError, Model};
-use crate::ingest::{self, IngestError, IngestSummary};
+use crate::ingest::replication::SequenceRange;
+use crate::ingest::{self, IngestError, IngestOptions, IngestSummary};
 use crate::labels::{LabelOptions, LabelsFileError};
 use crate::land::{Land, LandError};
 use crate::measure::Measure;
@@ -49,12 +50,16 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 pub enum Command {
-    /// Read OSM files (changeset metadata, osmChange diffs, .osm snapshots; plain, gzip or bzip2) into the state database.
+    /// Read OSM files (changeset metadata, osmChange diffs, .osm and .osm.pbf snapshots; XML plain, gzip or bzip2; replication folders) into the state database.
     Ingest {
-        /// State database (created if missing).
+        /// State database (created if missing); its node-location index is kept beside it.
         #[arg(long)]
         db: PathBuf,
-        /// Files or folders (folders are searched for .osc/.osm files).
+        /// Only these sequence numbers of replication folders, e.g. 4100-4200.
+        #[arg(long)]
+        sequences: Option<SequenceRange>,
+        /// Files or folders (folders are searched for .osc/.osm/.osm.pbf files; a folder in
+        /// the replication layout AAA/BBB/CCC.osc.gz is read in sequence order).
         #[arg(required = true)]
         inputs: Vec<PathBuf>,
     },
@@ -429,7 +434,10 @@ fn ingest_line(s: &IngestSummary) -> String {
         s.skipped_elements,
         s.elapsed_ms as f64 / 1000.0,
         rate
-    )
+    ) + &match s.replication.iter().map(|r| r.gaps.len()).sum::<usize>() {
+        0 => String::new(),
+        gaps => format!("; {gaps} sequence gap(s) in replication folders"),
+    }
 }
 
 fn report(db: &Path, out: &Path, opts: &ReportOptions, progress: &Progress) -> Result<(), Failure> {
@@ -646,9 +654,14 @@ fn explain(
 pub fn run(cli: Cli) -> Result<(), Failure> {
     let progress = Progress::new(cli.quiet);
     match cli.command {
-        Command::Ingest { db, inputs } => {
+        Command::Ingest {
+            db,
+            sequences,
+            inputs,
+        } => {
             let mut store = Store::open(&db)?;
-            let s = ingest::ingest(&mut store, &inputs, &progress)?;
+            let s =
+                ingest::ingest_with(&mut store, &inputs, &IngestOptions { sequences }, &progress)?;
             progress.note(&ingest_line(&s));
             Ok(())
         }

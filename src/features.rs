@@ -185,18 +185,24 @@ impl ExistingData {
         let conn = store.conn();
         let mut first: HashMap<(i64, i64), i64> = HashMap::new();
         let grid = format!("(lat_e7 + 900000000) / {GRID_E7}, (lon_e7 + 1800000000) / {GRID_E7}");
+        // Nodes never seen created count as existing from the start: the node-location index,
+        // less the nodes whose creation is among the diffs.
+        let mut created: std::collections::HashSet<i64> = std::collections::HashSet::new();
         let mut st = conn
-            .prepare(&format!(
-                "SELECT DISTINCT {grid} FROM elements e WHERE etype = 0 AND lat_e7 IS NOT NULL
-                 AND NOT EXISTS (SELECT 1 FROM edits d
-                                 WHERE d.etype = 0 AND d.eid = e.eid AND d.version = 1 AND d.op = 0)"
-            ))
+            .prepare("SELECT eid FROM edits WHERE etype = 0 AND op = 0 AND version = 1")
             .map_err(|e| store.map_err(e))?;
         let rows = st
-            .query_map([], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, i64>(1)?)))
+            .query_map([], |r| r.get::<_, i64>(0))
             .map_err(|e| store.map_err(e))?;
         for row in rows {
-            first.insert(row.map_err(|e| store.map_err(e))?, i64::MIN);
+            created.insert(row.map_err(|e| store.map_err(e))?);
+        }
+        for entry in store.node_index()?.iter()? {
+            let (id, n) = entry?;
+            if !created.contains(&id) {
+                let g = grid_of(i64::from(n.coord.lat_e7()), i64::from(n.coord.lon_e7()));
+                first.insert(g, i64::MIN);
+            }
         }
         let mut st = conn
             .prepare(&format!(

@@ -20,6 +20,7 @@ pub mod land;
 pub mod locate;
 pub mod measure;
 pub mod model;
+pub mod node_index;
 pub mod pipeline;
 pub mod progress;
 pub mod regions;

@@ -1,16 +1,18 @@
 //! Gives every edit of an analysis window a position.
 //!
 //! Order of evidence: the element's own coordinates (nodes); the node-location index (latest
-//! known position of each node, kept in the `elements` table from the snapshot and every diff)
-//! for deleted nodes without coordinates, ways (centroid of their nodes) and relations (centroid
-//! of their node and way members); then the centre of the changeset's bounding box. An edit that
-//! none of these can place is counted as unplaced, never silently dropped.
+//! known position of each node from the snapshot and every diff, read through
+//! [`Store::node_index`]) for deleted nodes without coordinates, ways (centroid of their nodes,
+//! whose refs are kept in the `elements` table) and relations (centroid of their node and way
+//! members); then the centre of the changeset's bounding box. An edit that none of these can
+//! place is counted as unplaced, never silently dropped.
 
 use std::collections::HashMap;
 
 use rusqlite::{params, OptionalExtension};
 
 use crate::model::{Coord, ElementType, Op};
+use crate::node_index::NodeIndex;
 use crate::store::{member_decode, unpack_refs, Store, StoreError};
 use crate::summary::Placement;
 
@@ -62,28 +64,19 @@ pub struct ChangesetMeta {
 /// Most members followed when placing a relation; enough for a centroid, bounded for huge ones.
 const MAX_MEMBERS_FOR_CENTROID: usize = 500;
 
-struct NodeIndex<'a> {
+/// Positions of nodes (from the node-location index) and refs of ways (from `elements`).
+struct Positions<'a> {
     store: &'a Store,
+    nodes: NodeIndex,
     cache: HashMap<i64, Option<Coord>>,
 }
 
-impl NodeIndex<'_> {
+impl Positions<'_> {
     fn node(&mut self, id: i64) -> Result<Option<Coord>, StoreError> {
         if let Some(c) = self.cache.get(&id) {
             return Ok(*c);
         }
-        let mut st = self
-            .store
-            .conn()
-            .prepare_cached("SELECT lat_e7, lon_e7 FROM elements WHERE etype = 0 AND eid = ?1")
-            .map_err(|e| self.store.map_err(e))?;
-        let c = st
-            .query_row([id], |r| {
-                Ok((r.get::<_, Option<i64>>(0)?, r.get::<_, Option<i64>>(1)?))
-            })
-            .optional()
-            .map_err(|e| self.store.map_err(e))?
-            .and_then(|(a, b)| Coord::from_e7(a?, b?));
+        let c = self.nodes.get(id)?.map(|e| e.coord);
         self.cache.insert(id, c);
         Ok(c)
     }
@@ -260,8 +253,9 @@ pub fn load_edits(
         })
         .map_err(|e| store.map_err(e))?;
     let mut edits = Vec::new();
-    let mut index = NodeIndex {
+    let mut index = Positions {
         store,
+        nodes: store.node_index()?,
         cache: HashMap::new(),
     };
     let mut pending = Vec::new();

@@ -1,6 +1,6 @@
 //! Main roads from the snapshot as faint context on heat images: visible ways tagged
 //! `highway=motorway`, `trunk`, `primary`, `secondary` or `tertiary` (and their `_link` roads),
-//! read from the `elements` table and placed with the node-location index (the same table).
+//! read from the `elements` table and placed with the node-location index.
 //!
 //! Kept cheap: one scan of the ways whose tags mention `highway`, one primary-key lookup per
 //! node, and a cap on the nodes read so a country-sized database cannot stall a report.
@@ -47,9 +47,7 @@ pub fn main_roads(store: &Store, extent: geo::Rect<f64>) -> Result<MainRoads, St
              WHERE etype = 1 AND visible = 1 AND instr(tags, ?1) > 0 ORDER BY eid",
         )
         .map_err(|e| store.map_err(e))?;
-    let mut node = conn
-        .prepare_cached("SELECT lat_e7, lon_e7 FROM elements WHERE etype = 0 AND eid = ?1")
-        .map_err(|e| store.map_err(e))?;
+    let nodes = store.node_index()?;
     let (min, max) = (extent.min(), extent.max());
     let inside =
         |(lon, lat): (f64, f64)| (min.x..=max.x).contains(&lon) && (min.y..=max.y).contains(&lat);
@@ -75,21 +73,14 @@ pub fn main_roads(store: &Store, extent: geo::Rect<f64>) -> Result<MainRoads, St
         nodes_read += refs.len();
         let mut runs: Vec<Vec<(f64, f64)>> = vec![Vec::new()];
         for id in refs {
-            let pos: Option<(Option<i32>, Option<i32>)> = node
-                .query_row([id], |r| Ok((r.get(0)?, r.get(1)?)))
-                .map(Some)
-                .or_else(|e| match e {
-                    rusqlite::Error::QueryReturnedNoRows => Ok(None),
-                    e => Err(store.map_err(e)),
-                })?;
-            match pos {
-                Some((Some(lat), Some(lon))) => {
-                    let p = (f64::from(lon) * 1e-7, f64::from(lat) * 1e-7);
+            match nodes.get(id)? {
+                Some(n) => {
+                    let p = (n.coord.lon(), n.coord.lat());
                     if let Some(run) = runs.last_mut() {
                         run.push(p);
                     }
                 }
-                _ => runs.push(Vec::new()),
+                None => runs.push(Vec::new()),
             }
         }
         let near = runs.iter().flatten().any(|&p| inside(p));
@@ -104,49 +95,27 @@ pub fn main_roads(store: &Store, extent: geo::Rect<f64>) -> Result<MainRoads, St
 #[allow(clippy::unwrap_used, reason = "test set-up")]
 mod tests {
     use super::*;
-    use crate::model::ElementType;
-    use crate::store::{pack_refs, pack_tags};
-
-    fn tags(kv: &[(&str, &str)]) -> String {
-        pack_tags(
-            &kv.iter()
-                .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
-                .collect::<Vec<_>>(),
-        )
-    }
 
     #[test]
     fn reads_main_roads_only_and_splits_at_unknown_nodes() {
         let dir = tempfile::tempdir().unwrap();
         let mut store = Store::open(&dir.path().join("s.db")).unwrap();
-        let tx = store.begin().unwrap();
-        for (id, lat, lon) in [
-            (1, 10.0, 20.0),
-            (2, 10.1, 20.1),
-            (3, 10.2, 20.2),
-            (5, 10.3, 20.3),
-        ] {
-            let pos = Some(((lat * 1e7) as i32, (lon * 1e7) as i32));
-            tx.put_element(ElementType::Node, id, 1, 0, true, pos, "", None)
-                .unwrap();
-        }
-        let road = |id: i64, hw: &str, refs: &[i64]| {
-            tx.put_element(
-                ElementType::Way,
-                id,
-                1,
-                0,
-                true,
-                None,
-                &tags(&[("highway", hw), ("name", "Quay Road")]),
-                Some(&pack_refs(refs.iter().copied())),
+        let way = |id: i64, hw: &str, refs: &[i64]| {
+            let nds: String = refs.iter().map(|r| format!(r#"<nd ref="{r}"/>"#)).collect();
+            format!(
+                r#"<way id="{id}" version="1">{nds}<tag k="highway" v="{hw}"/><tag k="name" v="Quay Road"/></way>"#
             )
-            .unwrap();
         };
-        road(10, "secondary", &[1, 2, 3, 4, 5, 1]); // node 4 unknown: two runs
-        road(11, "footway", &[1, 2]); // not a main road
-        road(12, "tertiary_link", &[2, 3]);
-        tx.commit().unwrap();
+        let snapshot = format!(
+            r#"<osm version="0.6"><node id="1" version="1" lat="10.0" lon="20.0"/><node id="2" version="1" lat="10.1" lon="20.1"/><node id="3" version="1" lat="10.2" lon="20.2"/><node id="5" version="1" lat="10.3" lon="20.3"/>{}{}{}</osm>"#,
+            // Node 4 is unknown: the first road splits into two runs.
+            way(10, "secondary", &[1, 2, 3, 4, 5, 1]),
+            way(11, "footway", &[1, 2]),
+            way(12, "tertiary_link", &[2, 3]),
+        );
+        let file = dir.path().join("s.osm");
+        std::fs::write(&file, snapshot).unwrap();
+        crate::ingest::ingest(&mut store, &[file], &crate::progress::Progress::silent()).unwrap();
         let extent = geo::Rect::new((19.0, 9.0), (21.0, 11.0));
         let r = main_roads(&store, extent).unwrap();
         assert!(!r.truncated);

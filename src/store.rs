@@ -6,6 +6,10 @@
 //! version of every element: position, tags, node refs; this doubles as the node-location index),
 //! `skipped` (odd elements skipped while reading, by reason).
 //!
+//! Node positions live in the node-location index ([`crate::node_index`]), a compact file next
+//! to the database whose generation is recorded in `meta` (`nodes_generation`) by the same
+//! transaction as the ingest that wrote it; `elements` keeps nodes only when they carry tags.
+//!
 //! Writes happen only inside an [`IngestTx`], one SQLite transaction per ingest command: a failed
 //! ingest rolls back and leaves the database as it was.
 
@@ -14,6 +18,7 @@ use std::path::{Path, PathBuf};
 use rusqlite::{params, Connection, OptionalExtension, Transaction};
 
 use crate::model::{ElementType, Op};
+use crate::node_index::{self, NodeEntry, NodeIndex, NodeIndexError, NodeIndexTx};
 
 /// Current database schema version.
 pub const SCHEMA_VERSION: i64 = 1;
@@ -30,7 +35,12 @@ pub enum StoreError {
     Schema { path: PathBuf, found: i64 },
     #[error("{path}: the database is busy: another hexvigil run is using it")]
     Busy { path: PathBuf },
+    #[error(transparent)]
+    NodeIndex(#[from] NodeIndexError),
 }
+
+/// The `meta` key holding the committed node-index generation.
+const NODES_GENERATION: &str = "nodes_generation";
 
 /// Tags packed into one string: `key \x1F value \x1E ...`. Both separators are control
 /// characters that XML 1.0 does not allow in attribute values, so no tag can contain them.
@@ -135,7 +145,9 @@ impl Store {
         // writer into a clear "busy" error instead of a long wait.
         conn.pragma_update(None, "journal_mode", "WAL")
             .map_err(err)?;
-        conn.pragma_update(None, "synchronous", "NORMAL")
+        // FULL: a commit is on disk when it returns. The ingest removes the previous node-index
+        // generation right after its commit, which must then survive a power cut too.
+        conn.pragma_update(None, "synchronous", "FULL")
             .map_err(err)?;
         conn.pragma_update(None, "foreign_keys", "OFF")
             .map_err(err)?;
@@ -174,7 +186,91 @@ impl Store {
                 })
             }
         }
+        store.ensure_node_index()?;
         Ok(store)
+    }
+
+    /// Records generation 0 in a new database; in a database written before the node-location
+    /// index existed, builds the index from the node positions in `elements` first.
+    fn ensure_node_index(&self) -> Result<(), StoreError> {
+        let known = |c: &Connection| {
+            c.query_row(
+                "SELECT 1 FROM meta WHERE key = ?1",
+                [NODES_GENERATION],
+                |_| Ok(()),
+            )
+            .optional()
+            .map(|o| o.is_some())
+        };
+        if known(&self.conn).map_err(|e| self.map_err(e))? {
+            return Ok(());
+        }
+        let tx = Transaction::new_unchecked(&self.conn, rusqlite::TransactionBehavior::Immediate)
+            .map_err(|e| self.map_err(e))?;
+        if known(&tx).map_err(|e| self.map_err(e))? {
+            return Ok(());
+        }
+        let prefix = self.node_index_prefix();
+        let mut nodes = NodeIndexTx::begin(&prefix, 0)?;
+        {
+            let mut st = tx
+                .prepare(
+                    "SELECT eid, version, lat_e7, lon_e7 FROM elements
+                     WHERE etype = 0 AND lat_e7 IS NOT NULL AND lon_e7 IS NOT NULL ORDER BY eid",
+                )
+                .map_err(|e| self.map_err(e))?;
+            let mut rows = st.query([]).map_err(|e| self.map_err(e))?;
+            while let Some(r) = rows.next().map_err(|e| self.map_err(e))? {
+                let (id, version, lat, lon): (i64, i64, i64, i64) = (
+                    r.get(0).map_err(|e| self.map_err(e))?,
+                    r.get(1).map_err(|e| self.map_err(e))?,
+                    r.get(2).map_err(|e| self.map_err(e))?,
+                    r.get(3).map_err(|e| self.map_err(e))?,
+                );
+                if let Some(c) = crate::model::Coord::from_e7(lat, lon) {
+                    nodes.stage(id, NodeEntry::new(c, version))?;
+                }
+            }
+        }
+        let prepared = nodes.prepare()?;
+        let generation = prepared
+            .as_ref()
+            .map_or(0, node_index::PreparedIndex::generation);
+        tx.execute(
+            "INSERT INTO meta(key, value) VALUES(?1, ?2)",
+            params![NODES_GENERATION, generation.to_string()],
+        )
+        .map_err(|e| self.map_err(e))?;
+        tx.commit().map_err(|e| self.map_err(e))?;
+        if let Some(p) = prepared {
+            p.committed();
+        }
+        Ok(())
+    }
+
+    /// The file-name prefix of this database's node-location index.
+    #[must_use]
+    pub fn node_index_prefix(&self) -> PathBuf {
+        node_index::prefix_for(&self.path)
+    }
+
+    /// Opens the committed node-location index, the one API through which positions of nodes
+    /// are read.
+    ///
+    /// # Errors
+    /// On SQLite failure, or when the index file is missing or damaged.
+    pub fn node_index(&self) -> Result<NodeIndex, StoreError> {
+        // An ingest that commits between reading the generation and opening its file removes
+        // the file just read; reading the generation again then names the new one.
+        let mut attempt = 0;
+        loop {
+            let generation = read_generation(&self.conn).map_err(|e| self.map_err(e))?;
+            match NodeIndex::open_generation(&self.node_index_prefix(), generation) {
+                Ok(idx) => return Ok(idx),
+                Err(e) if attempt >= 2 => return Err(e.into()),
+                Err(_) => attempt += 1,
+            }
+        }
     }
 
     /// Maps a SQLite error to a [`StoreError`] naming this database.
@@ -255,11 +351,23 @@ impl Store {
     }
 }
 
+fn read_generation(conn: &Connection) -> Result<u64, rusqlite::Error> {
+    let v: Option<String> = conn
+        .query_row(
+            "SELECT value FROM meta WHERE key = ?1",
+            [NODES_GENERATION],
+            |r| r.get(0),
+        )
+        .optional()?;
+    Ok(v.and_then(|v| v.parse().ok()).unwrap_or(0))
+}
+
 /// Previous state of an element, as stored before an edit replaced it.
 #[derive(Debug, Clone, Default)]
 pub struct Prev {
     pub version: i64,
-    pub ts: i64,
+    /// Unknown for untagged nodes, which only the node-location index holds.
+    pub ts: Option<i64>,
     pub tags: String,
     pub lat_e7: Option<i32>,
     pub lon_e7: Option<i32>,
@@ -278,6 +386,28 @@ impl IngestTx<'_> {
             path: self.path.clone(),
             source,
         }
+    }
+
+    /// The committed node-index generation (the one this transaction started from).
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn node_generation(&self) -> Result<u64, StoreError> {
+        read_generation(&self.tx).map_err(|e| self.err(e))
+    }
+
+    /// Records the node-index generation this ingest wrote; it becomes current at commit.
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn set_node_generation(&self, generation: u64) -> Result<(), StoreError> {
+        self.tx
+            .execute(
+                "INSERT OR REPLACE INTO meta(key, value) VALUES(?1, ?2)",
+                params![NODES_GENERATION, generation.to_string()],
+            )
+            .map(|_| ())
+            .map_err(|e| self.err(e))
     }
 
     /// Whether an input with this content hash was ingested before.
@@ -453,7 +583,7 @@ impl IngestTx<'_> {
             tags,
             refs,
             prev.map(|p| p.version),
-            prev.map(|p| p.ts),
+            prev.and_then(|p| p.ts),
             prev.map(|p| p.tags.as_str()),
             prev.and_then(|p| p.lat_e7),
             prev.and_then(|p| p.lon_e7),
@@ -538,6 +668,45 @@ mod tests {
         tx.add_skipped("x", 2).unwrap();
         tx.commit().unwrap();
         assert_eq!(s.skipped().unwrap(), vec![("x".to_owned(), 5)]);
+    }
+
+    /// A database from before the node-location index: node positions only in `elements`,
+    /// no generation in `meta`. Opening it builds the index from them.
+    #[test]
+    fn positions_in_elements_are_moved_to_the_index_on_open() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("old.db");
+        {
+            let s = Store::open(&path).unwrap();
+            s.conn()
+                .execute_batch(
+                    "DELETE FROM meta WHERE key = 'nodes_generation';
+                     INSERT INTO elements VALUES(0, 7, 3, 0, 1, 452000000, -336000000, '', NULL);
+                     INSERT INTO elements VALUES(0, 8, 1, 0, 0, NULL, NULL, '', NULL);
+                     INSERT INTO elements VALUES(1, 7, 1, 0, 1, NULL, NULL, '', NULL);",
+                )
+                .unwrap();
+        }
+        let s = Store::open(&path).unwrap();
+        let idx = s.node_index().unwrap();
+        assert_eq!(idx.len(), 1);
+        let e = idx.get(7).unwrap().unwrap();
+        assert_eq!(
+            (e.coord.lat_e7(), e.coord.lon_e7(), e.version),
+            (452_000_000, -336_000_000, 3)
+        );
+        let generation: String = s
+            .conn()
+            .query_row(
+                "SELECT value FROM meta WHERE key = 'nodes_generation'",
+                [],
+                |r| r.get(0),
+            )
+            .unwrap();
+        assert_eq!(generation, "1");
+        // Opened again: nothing more to do.
+        drop(s);
+        assert_eq!(Store::open(&path).unwrap().node_index().unwrap().len(), 1);
     }
 
     #[test]

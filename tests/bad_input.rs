@@ -74,26 +74,25 @@ fn every_bad_file_fails_clearly_and_changes_nothing() {
     let rows = expected();
     assert!(rows.len() >= 30, "the corpus should hold at least 30 files");
     let work = tempfile::tempdir().unwrap();
-    let db = work.path().join("state.db");
-    // A database with real content, so "unchanged" means something.
+    // Each file meets a database with real content, so "unchanged" means something.
     let good = work.path().join("good.osc");
     std::fs::write(
         &good,
         r#"<osmChange version="0.6"><create><node id="1" version="1" changeset="5" uid="1" user="a" timestamp="2026-11-16T10:00:00Z" lat="45.2" lon="-33.6"><tag k="name" v="x"/></node></create></osmChange>"#,
     )
     .unwrap();
-    let out = hexvigil(&[
-        "ingest".as_ref(),
-        "--db".as_ref(),
-        db.as_os_str(),
-        good.as_os_str(),
-    ]);
-    assert!(out.status.success());
     let mut failures = Vec::new();
     for (name, code, text) in rows {
         let file = corpus().join(&name);
+        // A fresh database with real content (and its node-location index beside it).
         let fresh = work.path().join(format!("{name}.db"));
-        std::fs::copy(&db, &fresh).unwrap();
+        let out = hexvigil(&[
+            "ingest".as_ref(),
+            "--db".as_ref(),
+            fresh.as_os_str(),
+            good.as_os_str(),
+        ]);
+        assert!(out.status.success());
         let before = snapshot(&fresh);
         let out = if name.ends_with(".geojson") {
             let flag = if name.starts_with("land") {

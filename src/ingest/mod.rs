@@ -1,23 +1,39 @@
 //! Reading OSM files into the state database.
 //!
-//! Inputs are plain, gzip or bzip2 (detected from the first bytes, not the name); the XML
-//! reader ([`xml`]) streams them into an [`IngestTx`], so memory does not grow with the file.
-//! One ingest command is one transaction: every input lands, or none does. A file whose content
-//! hash is already recorded is skipped, so the same input ingested twice counts once; overlapping
-//! diffs count once too, since edits are unique by element type, id and version.
+//! Inputs are OSM XML (plain, gzip or bzip2, detected from the first bytes, not the name) read
+//! by the streaming reader in [`xml`], and PBF snapshots read by [`pbf`]; a replication folder
+//! ([`replication`]) is one input whose diffs are read in sequence order. Parser threads read
+//! the files in parallel into bounded queues of batches; one writer applies the batches to an
+//! [`IngestTx`] and the node-location index in a fixed order (snapshots, changeset metadata,
+//! diffs by path, which is sequence order in a replication folder), so the result does not
+//! depend on scheduling and memory does not grow with the input.
+//!
+//! One ingest command is one transaction: every input lands, or none does, in the database and
+//! in the node-location index alike (see [`crate::node_index`] for the order of the file switch
+//! and the commit). A file whose content hash is already recorded is skipped, so the same input
+//! ingested twice counts once; overlapping diffs count once too, since edits are unique by
+//! element type, id and version.
 
+pub mod pbf;
+pub mod replication;
 pub mod xml;
 
 use std::fs::File;
 use std::io::{BufRead, BufReader, Read};
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, AtomicU64, AtomicUsize, Ordering};
+use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
+use std::sync::Mutex;
 use std::time::Instant;
 
+use rayon::prelude::*;
 use sha2::{Digest, Sha256};
 
 use crate::model::{ElementType, Op};
+use crate::node_index::{NodeEntry, NodeIndexTx};
 use crate::progress::Progress;
 use crate::store::{member_code, pack_refs, pack_tags, IngestTx, Prev, Store, StoreError};
+use replication::{Replication, SequenceRange};
 use xml::{OsmSink, RawChangeset, RawElement, ReadError, Root, SinkError};
 
 /// Errors of an ingest; every variant names the file.
@@ -42,10 +58,19 @@ pub enum IngestError {
     Store(#[from] StoreError),
 }
 
+/// How the file is encoded, from a look at its first bytes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Format {
+    /// OSM XML, plain or gzip or bzip2 compressed.
+    Xml,
+    /// OSM PBF (`.osm.pbf`).
+    Pbf,
+}
+
 /// What the file holds, from a look at its first bytes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
 pub enum InputKind {
-    /// `<osm>` with nodes, ways, relations.
+    /// `<osm>` with nodes, ways, relations, or a PBF file.
     Snapshot,
     /// `<osm>` with changesets.
     Changesets,
@@ -64,9 +89,18 @@ impl InputKind {
     }
 }
 
+/// Choices for an ingest beyond its inputs.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct IngestOptions {
+    /// Only these sequence numbers of replication folders.
+    pub sequences: Option<SequenceRange>,
+}
+
 /// Totals of one ingest.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct IngestSummary {
+    /// Replication folders among the inputs: selected diffs, timestamps, gaps.
+    pub replication: Vec<Replication>,
     pub files: u64,
     /// Files skipped because their content was ingested before.
     pub already_ingested: u64,
@@ -89,6 +123,28 @@ fn io_err(path: &Path) -> impl Fn(std::io::Error) -> IngestError + '_ {
     move |source| IngestError::Io {
         path: path.to_owned(),
         source,
+    }
+}
+
+/// A reader that adds the bytes it reads to a shared counter (for the progress bar).
+struct Counting<'a, R> {
+    inner: R,
+    count: Option<&'a AtomicU64>,
+}
+
+impl<R: Read> Read for Counting<'_, R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        if let Some(c) = self.count {
+            c.fetch_add(n as u64, Ordering::Relaxed);
+        }
+        Ok(n)
+    }
+}
+
+impl<R: std::io::Seek> std::io::Seek for Counting<'_, R> {
+    fn seek(&mut self, pos: std::io::SeekFrom) -> std::io::Result<u64> {
+        self.inner.seek(pos)
     }
 }
 
@@ -116,9 +172,17 @@ impl<R: Read> Read for Capped<R> {
 /// # Errors
 /// When the file cannot be opened.
 pub fn open_decompressed(path: &Path) -> Result<Box<dyn BufRead + Send>, IngestError> {
+    open_counted(path, None)
+}
+
+/// Like [`open_decompressed`], adding the compressed bytes read to `count`.
+fn open_counted<'a>(
+    path: &Path,
+    count: Option<&'a AtomicU64>,
+) -> Result<Box<dyn BufRead + Send + 'a>, IngestError> {
     let file = File::open(path).map_err(io_err(path))?;
     let size = file.metadata().map_err(io_err(path))?.len();
-    let mut raw = BufReader::with_capacity(1 << 16, file);
+    let mut raw = BufReader::with_capacity(1 << 16, Counting { inner: file, count });
     let head = raw.fill_buf().map_err(io_err(path))?;
     let limit = size.saturating_mul(MAX_EXPANSION).max(EXPANSION_FLOOR);
     Ok(if head.starts_with(&[0x1f, 0x8b]) {
@@ -142,11 +206,11 @@ pub fn open_decompressed(path: &Path) -> Result<Box<dyn BufRead + Send>, IngestE
     })
 }
 
-/// Looks at the start of a (decompressed) file to tell its kind.
+/// Looks at the start of a (decompressed) file to tell its kind and format.
 ///
 /// # Errors
-/// When the file is unreadable, binary, PBF, or not OSM XML.
-pub fn sniff(path: &Path) -> Result<InputKind, IngestError> {
+/// When the file is unreadable, binary, or neither OSM XML nor PBF.
+pub fn sniff(path: &Path) -> Result<(InputKind, Format), IngestError> {
     let mut r = open_decompressed(path)?;
     let mut head = Vec::with_capacity(1 << 16);
     (&mut r)
@@ -160,11 +224,10 @@ pub fn sniff(path: &Path) -> Result<InputKind, IngestError> {
         path: path.to_owned(),
         message: message.to_owned(),
     };
-    // A PBF file starts with a 4-byte length and a BlobHeader whose type string is "OSMHeader".
-    if head.iter().take(32).position(|&b| b == b'O').is_some()
-        && head.windows(9).take(32).any(|w| w == b"OSMHeader")
-    {
-        return Err(fmt("this is an OSM PBF file, which this version does not read yet; convert it to .osm or .osm.gz"));
+    // Source: OSM wiki "PBF Format": a 4-byte big-endian header length, then a BlobHeader
+    // message whose field 1 (tag byte 0x0A, length 9) is the type string "OSMHeader".
+    if head.len() >= 15 && head[4] == 0x0A && head[5] == 9 && &head[6..15] == b"OSMHeader" {
+        return Ok((InputKind::Snapshot, Format::Pbf));
     }
     let text = String::from_utf8_lossy(&head);
     let trimmed = text.trim_start_matches('\u{feff}').trim_start();
@@ -175,25 +238,32 @@ pub fn sniff(path: &Path) -> Result<InputKind, IngestError> {
         return Err(fmt("not an XML document (binary or unknown content); expected OSM XML, optionally gzip or bzip2 compressed"));
     }
     if text.contains("<osmChange") {
-        return Ok(InputKind::Change);
+        return Ok((InputKind::Change, Format::Xml));
     }
     let first = |needle: &str| text.find(needle).unwrap_or(usize::MAX);
     let cs = first("<changeset");
     let el = first("<node").min(first("<way")).min(first("<relation"));
     if cs < el {
-        Ok(InputKind::Changesets)
+        Ok((InputKind::Changesets, Format::Xml))
     } else {
         // Snapshots and anything else: the parser gives the precise error for a wrong root.
-        Ok(InputKind::Snapshot)
+        Ok((InputKind::Snapshot, Format::Xml))
     }
 }
 
-/// Expands folders into the OSM files they hold (recursively, sorted by path).
+/// Expands folders into the OSM files they hold (recursively, sorted by path); diffs in the
+/// replication layout (`AAA/BBB/CCC.osc.gz`) are grouped by replication folder and selected by
+/// `sequences`.
 ///
 /// # Errors
-/// When a folder cannot be listed or a path does not exist.
-pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>, IngestError> {
+/// When a folder cannot be listed, a path does not exist, a state file is bad, or a sequence
+/// range is given without any replication folder.
+pub fn expand_inputs(
+    inputs: &[PathBuf],
+    sequences: Option<SequenceRange>,
+) -> Result<(Vec<PathBuf>, Vec<Replication>), IngestError> {
     let mut out = Vec::new();
+    let mut in_folders = Vec::new();
     for p in inputs {
         let meta = std::fs::metadata(p).map_err(io_err(p))?;
         if meta.is_dir() {
@@ -211,12 +281,27 @@ pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>, IngestError> {
                 }
             }
             found.sort();
-            out.extend(found);
+            in_folders.extend(found);
         } else {
             out.push(p.clone());
         }
     }
-    Ok(out)
+    let (reps, others) = replication::select(in_folders, sequences)?;
+    if let (Some(r), true) = (sequences, reps.is_empty()) {
+        return Err(IngestError::Format {
+            path: inputs.first().cloned().unwrap_or_default(),
+            message: format!(
+                "--sequences {}-{} was given, but no input folder holds replication diffs (AAA/BBB/CCC.osc.gz)",
+                r.first, r.last
+            ),
+        });
+    }
+    out.extend(others);
+    out.extend(
+        reps.iter()
+            .flat_map(|r| r.files.iter().map(|f| f.1.clone())),
+    );
+    Ok((out, reps))
 }
 
 fn is_osm_name(p: &Path) -> bool {
@@ -224,9 +309,11 @@ fn is_osm_name(p: &Path) -> bool {
         .file_name()
         .map(|n| n.to_string_lossy().to_lowercase())
         .unwrap_or_default();
-    [".osc", ".osc.gz", ".osc.bz2", ".osm", ".osm.gz", ".osm.bz2"]
-        .iter()
-        .any(|s| n.ends_with(s))
+    [
+        ".osc", ".osc.gz", ".osc.bz2", ".osm", ".osm.gz", ".osm.bz2", ".osm.pbf",
+    ]
+    .iter()
+    .any(|s| n.ends_with(s))
 }
 
 fn hash_file(path: &Path) -> Result<String, IngestError> {
@@ -260,10 +347,45 @@ fn line_col(path: &Path, offset: u64) -> (u64, u64) {
     (line, col)
 }
 
-/// Ingests files into the database as one transaction.
-///
-/// Order: snapshots first, then changeset metadata, then diffs, each group by path (daily and
-/// replication file names sort in time order), so each edit finds the state it replaced.
+/// One thing read from an input, owned so it can move from a parser thread to the writer.
+#[derive(Debug, Clone)]
+pub enum Item {
+    Changeset(RawChangeset),
+    /// An element version; the op is `None` in snapshots.
+    Element(Option<Op>, RawElement),
+    /// An odd but valid element was skipped, for this reason.
+    Skipped(&'static str),
+}
+
+/// Items per batch handed from a parser to the writer.
+const BATCH_ITEMS: usize = 4096;
+/// Batches queued per input before its parser waits for the writer.
+const QUEUED_BATCHES: usize = 4;
+
+/// What a parser thread sends the writer about one input.
+enum Msg {
+    Batch {
+        items: Vec<Item>,
+        bytes: u64,
+    },
+    /// The input was read to its end; `bytes` not yet reported.
+    Done {
+        root: Option<Root>,
+        bytes: u64,
+    },
+    Failed(IngestError),
+}
+
+/// One input to read.
+struct Input {
+    kind: InputKind,
+    format: Format,
+    path: PathBuf,
+    hash: String,
+    size: u64,
+}
+
+/// Ingests files into the database as one transaction; see [`ingest_with`].
 ///
 /// # Errors
 /// The first bad file stops the ingest, which is then rolled back.
@@ -272,114 +394,357 @@ pub fn ingest(
     inputs: &[PathBuf],
     progress: &Progress,
 ) -> Result<IngestSummary, IngestError> {
+    ingest_with(store, inputs, &IngestOptions::default(), progress)
+}
+
+/// Ingests files into the database and the node-location index as one transaction.
+///
+/// Order: snapshots first, then changeset metadata, then diffs, each group by path (daily and
+/// replication file names sort in time order), so each edit finds the state it replaced.
+///
+/// # Errors
+/// The first bad file (in that order) stops the ingest, which is then rolled back.
+pub fn ingest_with(
+    store: &mut Store,
+    inputs: &[PathBuf],
+    options: &IngestOptions,
+    progress: &Progress,
+) -> Result<IngestSummary, IngestError> {
     let started = Instant::now();
-    let files = expand_inputs(inputs)?;
+    let (files, replication) = expand_inputs(inputs, options.sequences)?;
+    for r in &replication {
+        progress.note(&replication_note(r));
+    }
     let mut classified = Vec::with_capacity(files.len());
     for f in files {
-        let kind = sniff(&f)?;
-        classified.push((kind, f));
+        let (kind, format) = sniff(&f)?;
+        classified.push((kind, format, f));
     }
-    classified.sort();
-    let total_bytes: u64 = classified
-        .iter()
-        .filter_map(|(_, f)| std::fs::metadata(f).ok())
-        .map(|m| m.len())
-        .sum();
-    let bar = progress.bytes(total_bytes, "ingest");
-    let mut summary = IngestSummary::default();
+    classified.sort_by(|a, b| (a.0, &a.2).cmp(&(b.0, &b.2)));
+    let hashed: Vec<Result<Input, IngestError>> = classified
+        .into_par_iter()
+        .map(|(kind, format, path)| {
+            let size = std::fs::metadata(&path).map_err(io_err(&path))?.len();
+            let hash = hash_file(&path)?;
+            Ok(Input {
+                kind,
+                format,
+                path,
+                hash,
+                size,
+            })
+        })
+        .collect();
+    let mut summary = IngestSummary {
+        replication,
+        ..IngestSummary::default()
+    };
+    let prefix = store.node_index_prefix();
     let tx = store.begin()?;
-    let now = chrono::Utc::now().timestamp();
-    for (kind, path) in &classified {
-        let size = std::fs::metadata(path).map_err(io_err(path))?.len();
-        summary.bytes += size;
-        let hash = hash_file(path)?;
-        if tx.has_input(&hash)? {
+    let committed = tx.node_generation()?;
+    // The write lock is held: no other ingest writes index files now.
+    crate::node_index::remove_other_generations(&prefix, committed).map_err(StoreError::from)?;
+    let mut nodes = NodeIndexTx::begin(&prefix, committed).map_err(StoreError::from)?;
+    let mut todo = Vec::new();
+    let mut seen = std::collections::HashSet::new();
+    for input in hashed {
+        let input = input?;
+        summary.bytes += input.size;
+        if !seen.insert(input.hash.clone()) || tx.has_input(&input.hash)? {
             summary.already_ingested += 1;
-            bar.inc(size);
-            progress.note(&format!("{}: already ingested, skipped", path.display()));
+            progress.note(&format!(
+                "{}: already ingested, skipped",
+                input.path.display()
+            ));
             continue;
         }
-        let mut sink = StoreSink {
+        todo.push(input);
+    }
+    let bar = progress.bytes(todo.iter().map(|i| i.size).sum(), "ingest");
+    let now = chrono::Utc::now().timestamp();
+    run_parsers(&todo, |i, rx| {
+        let input = &todo[i];
+        let mut w = Writer {
             tx: &tx,
+            nodes: &mut nodes,
             elements: 0,
             changesets: 0,
             new_edits: 0,
             skipped: std::collections::BTreeMap::new(),
         };
-        let reader = open_decompressed(path)?;
-        let root = xml::read_osm(reader, &mut sink).map_err(|e| match e {
-            ReadError::Parse(p) => {
-                let (line, column) = line_col(path, p.offset);
+        let root = loop {
+            match rx.recv() {
+                Ok(Msg::Batch { items, bytes }) => {
+                    for item in items {
+                        w.apply(item)?;
+                    }
+                    bar.inc(bytes);
+                }
+                Ok(Msg::Done { root, bytes }) => {
+                    bar.inc(bytes);
+                    break root;
+                }
+                Ok(Msg::Failed(e)) => return Err(e),
+                Err(_) => {
+                    return Err(IngestError::Format {
+                        path: input.path.clone(),
+                        message: "the reader stopped unexpectedly".to_owned(),
+                    })
+                }
+            }
+        };
+        if root.is_some_and(|r| (r == Root::OsmChange) != (input.kind == InputKind::Change)) {
+            return Err(IngestError::Format {
+                path: input.path.clone(),
+                message: "the root element does not match the file's content".to_owned(),
+            });
+        }
+        for (reason, n) in &w.skipped {
+            tx.add_skipped(reason, *n)?;
+            summary.skipped_elements += n;
+        }
+        tx.record_input(
+            &input.hash,
+            &input.path.display().to_string(),
+            input.kind.name(),
+            w.elements,
+            w.changesets,
+            now,
+        )?;
+        summary.files += 1;
+        summary.elements += w.elements;
+        summary.changesets += w.changesets;
+        summary.new_edits += w.new_edits;
+        Ok(())
+    })?;
+    // The index file of the next generation is complete and in place before the database
+    // names it; until the commit the database still names the previous one.
+    let prepared = nodes.prepare().map_err(StoreError::from)?;
+    if let Some(p) = &prepared {
+        tx.set_node_generation(p.generation())?;
+    }
+    tx.commit()?;
+    if let Some(p) = prepared {
+        p.committed();
+    }
+    bar.finish();
+    summary.elapsed_ms = u64::try_from(started.elapsed().as_millis()).unwrap_or(u64::MAX);
+    Ok(summary)
+}
+
+/// The note shown for a replication folder: its span, times and gaps.
+#[must_use]
+pub fn replication_note(r: &Replication) -> String {
+    let time = |t: Option<i64>| {
+        t.and_then(|t| chrono::DateTime::from_timestamp(t, 0))
+            .map(|t| t.format(" %Y-%m-%d %H:%M UTC").to_string())
+            .unwrap_or_default()
+    };
+    let mut s = match r.span() {
+        Some((a, b)) => format!(
+            "replication folder {}: {} diff(s), sequences {a}{} to {b}{}",
+            r.root.display(),
+            r.files.len(),
+            time(r.first_time),
+            time(r.last_time)
+        ),
+        None => format!(
+            "replication folder {}: no diff in the requested sequences",
+            r.root.display()
+        ),
+    };
+    if !r.gaps.is_empty() {
+        let gaps: Vec<String> = r
+            .gaps
+            .iter()
+            .map(|&(a, b)| {
+                if a == b {
+                    a.to_string()
+                } else {
+                    format!("{a}-{b}")
+                }
+            })
+            .collect();
+        s.push_str(&format!(
+            "; missing sequence(s) {} (a gap: the rest is ingested)",
+            gaps.join(", ")
+        ));
+    }
+    s
+}
+
+/// Runs parser threads over `inputs` while `consume` applies each input's batches in input
+/// order on the calling thread. Threads claim inputs in order and each works on one input at a
+/// time, so the input being consumed always has a thread, and a parser blocked on its full
+/// queue only waits for the writer; queues are bounded, so memory is too.
+///
+/// Plain threads rather than rayon tasks: a parser spends its life blocked on its queue, which
+/// would starve the rayon pool that decodes PBF blocks.
+fn run_parsers(
+    inputs: &[Input],
+    mut consume: impl FnMut(usize, &Receiver<Msg>) -> Result<(), IngestError>,
+) -> Result<(), IngestError> {
+    if inputs.is_empty() {
+        return Ok(());
+    }
+    let mut senders = Vec::with_capacity(inputs.len());
+    let mut receivers = Vec::with_capacity(inputs.len());
+    for _ in inputs {
+        let (s, r) = sync_channel::<Msg>(QUEUED_BATCHES);
+        senders.push(Mutex::new(Some(s)));
+        receivers.push(r);
+    }
+    let next = AtomicUsize::new(0);
+    let stop = AtomicBool::new(false);
+    let threads = std::thread::available_parallelism()
+        .map_or(1, std::num::NonZeroUsize::get)
+        .clamp(1, inputs.len());
+    std::thread::scope(|scope| {
+        for _ in 0..threads {
+            scope.spawn(|| loop {
+                let i = next.fetch_add(1, Ordering::SeqCst);
+                if i >= inputs.len() || stop.load(Ordering::SeqCst) {
+                    break;
+                }
+                let sender = senders[i].lock().ok().and_then(|mut s| s.take());
+                if let Some(sender) = sender {
+                    parse_input(&inputs[i], &sender);
+                }
+            });
+        }
+        let mut result = Ok(());
+        for (i, rx) in receivers.iter().enumerate() {
+            result = consume(i, rx);
+            if result.is_err() {
+                break;
+            }
+        }
+        // On failure: parsers see their queues closed and stop; no new input is started.
+        stop.store(true, Ordering::SeqCst);
+        drop(receivers);
+        result
+    })
+}
+
+/// Reads one input and sends its batches, then `Done` or `Failed`.
+fn parse_input(input: &Input, sender: &SyncSender<Msg>) {
+    let bytes = AtomicU64::new(0);
+    let mut reported = 0u64;
+    let mut send = |items: Vec<Item>| -> Result<(), SinkError> {
+        let now = bytes.load(Ordering::Relaxed);
+        let msg = Msg::Batch {
+            items,
+            bytes: now.saturating_sub(reported),
+        };
+        reported = now;
+        sender
+            .send(msg)
+            .map_err(|_| SinkError::from("the ingest stopped"))
+    };
+    let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| match input.format {
+        Format::Xml => parse_xml(&input.path, &bytes, &mut send),
+        Format::Pbf => pbf::read_pbf(&input.path, &bytes, &mut send).map(|()| None),
+    }))
+    .unwrap_or_else(|_| {
+        Err(IngestError::Format {
+            path: input.path.clone(),
+            message: "the reader failed on malformed data".to_owned(),
+        })
+    });
+    let msg = match result {
+        Ok(root) => Msg::Done {
+            root,
+            bytes: input.size.saturating_sub(reported),
+        },
+        Err(e) => Msg::Failed(e),
+    };
+    // A closed queue means the writer stopped; nothing more to say.
+    let _ = sender.send(msg);
+}
+
+/// Collects the XML reader's output into batches.
+struct BatchSink<'a> {
+    items: Vec<Item>,
+    send: &'a mut dyn FnMut(Vec<Item>) -> Result<(), SinkError>,
+}
+
+impl BatchSink<'_> {
+    fn push(&mut self, item: Item) -> Result<(), SinkError> {
+        self.items.push(item);
+        if self.items.len() >= BATCH_ITEMS {
+            let full = std::mem::replace(&mut self.items, Vec::with_capacity(BATCH_ITEMS));
+            (self.send)(full)?;
+        }
+        Ok(())
+    }
+}
+
+impl OsmSink for BatchSink<'_> {
+    fn changeset(&mut self, cs: &RawChangeset) -> Result<(), SinkError> {
+        self.push(Item::Changeset(cs.clone()))
+    }
+
+    fn element(&mut self, op: Option<Op>, el: &RawElement) -> Result<(), SinkError> {
+        self.push(Item::Element(op, el.clone()))
+    }
+
+    fn skipped(&mut self, reason: &'static str) {
+        self.items.push(Item::Skipped(reason));
+    }
+}
+
+fn parse_xml(
+    path: &Path,
+    bytes: &AtomicU64,
+    send: &mut dyn FnMut(Vec<Item>) -> Result<(), SinkError>,
+) -> Result<Option<Root>, IngestError> {
+    let reader = open_counted(path, Some(bytes))?;
+    let mut sink = BatchSink {
+        items: Vec::with_capacity(BATCH_ITEMS),
+        send,
+    };
+    let root = xml::read_osm(reader, &mut sink).map_err(|e| match e {
+        ReadError::Parse(p) => {
+            let (line, column) = line_col(path, p.offset);
+            let m = &p.message;
+            // A decompression failure surfaces as an XML read error; say what it really is.
+            if m.contains("gzip")
+                || m.contains("deflate")
+                || m.contains("bzip")
+                || m.contains("decompress")
+                || m.contains("corrupt")
+            {
+                IngestError::Format {
+                    path: path.to_owned(),
+                    message: format!("damaged or truncated compressed data at line {line}, column {column} (byte {} of the text): {m}", p.offset),
+                }
+            } else {
                 IngestError::Parse {
-                    path: path.clone(),
+                    path: path.to_owned(),
                     line,
                     column,
                     offset: p.offset,
                     message: p.message,
                 }
             }
-            ReadError::Sink(s) => match s.downcast::<StoreError>() {
-                Ok(se) => IngestError::Store(*se),
-                Err(other) => IngestError::Format {
-                    path: path.clone(),
-                    message: other.to_string(),
-                },
-            },
-        });
-        let root = match root {
-            Ok(r) => r,
-            // A decompression failure surfaces as an XML read error; say what it really is.
-            Err(IngestError::Parse {
-                message,
-                line,
-                column,
-                offset,
-                ..
-            }) if message.contains("gzip")
-                || message.contains("deflate")
-                || message.contains("bzip")
-                || message.contains("decompress")
-                || message.contains("corrupt") =>
-            {
-                return Err(IngestError::Format {
-                    path: path.clone(),
-                    message: format!("damaged or truncated compressed data at line {line}, column {column} (byte {offset} of the text): {message}"),
-                });
-            }
-            Err(e) => return Err(e),
-        };
-        if (root == Root::OsmChange) != (*kind == InputKind::Change) {
-            return Err(IngestError::Format {
-                path: path.clone(),
-                message: "the root element does not match the file's content".to_owned(),
-            });
         }
-        for (reason, n) in &sink.skipped {
-            tx.add_skipped(reason, *n)?;
-            summary.skipped_elements += n;
-        }
-        tx.record_input(
-            &hash,
-            &path.display().to_string(),
-            kind.name(),
-            sink.elements,
-            sink.changesets,
-            now,
-        )?;
-        summary.files += 1;
-        summary.elements += sink.elements;
-        summary.changesets += sink.changesets;
-        summary.new_edits += sink.new_edits;
-        bar.inc(size);
-    }
-    tx.commit()?;
-    bar.finish();
-    summary.elapsed_ms = u64::try_from(started.elapsed().as_millis()).unwrap_or(u64::MAX);
-    Ok(summary)
+        ReadError::Sink(s) => IngestError::Format {
+            path: path.to_owned(),
+            message: s.to_string(),
+        },
+    })?;
+    let rest = std::mem::take(&mut sink.items);
+    (sink.send)(rest).map_err(|e| IngestError::Format {
+        path: path.to_owned(),
+        message: e.to_string(),
+    })?;
+    Ok(Some(root))
 }
 
-struct StoreSink<'a, 'b> {
+/// The one writer: applies items to the database transaction and the node-location index.
+struct Writer<'a, 'b> {
     tx: &'a IngestTx<'b>,
+    nodes: &'a mut NodeIndexTx,
     elements: u64,
     changesets: u64,
     new_edits: u64,
@@ -395,26 +760,68 @@ fn refs_of(el: &RawElement) -> Option<Vec<u8>> {
     }
 }
 
-impl OsmSink for StoreSink<'_, '_> {
-    fn changeset(&mut self, cs: &RawChangeset) -> Result<(), SinkError> {
-        self.changesets += 1;
-        self.tx.put_changeset(cs)?;
+impl Writer<'_, '_> {
+    fn apply(&mut self, item: Item) -> Result<(), IngestError> {
+        match item {
+            Item::Changeset(cs) => {
+                self.changesets += 1;
+                self.tx.put_changeset(&cs)?;
+            }
+            Item::Element(op, el) => self.element(op, &el)?,
+            Item::Skipped(reason) => *self.skipped.entry(reason).or_default() += 1,
+        }
         Ok(())
     }
 
-    fn element(&mut self, op: Option<Op>, el: &RawElement) -> Result<(), SinkError> {
+    fn stage(&mut self, id: i64, pos: Option<(i32, i32)>, version: i64) -> Result<(), StoreError> {
+        if let Some(c) = pos.and_then(|(a, b)| crate::model::Coord::from_e7(a.into(), b.into())) {
+            self.nodes.stage(id, NodeEntry::new(c, version))?;
+        }
+        Ok(())
+    }
+
+    /// Applies one element version. Node positions go to the node-location index; `elements`
+    /// keeps ways, relations and nodes that carry (or carried) tags.
+    fn element(&mut self, op: Option<Op>, el: &RawElement) -> Result<(), StoreError> {
         let Some(t) = el.etype else {
             return Ok(());
         };
         self.elements += 1;
-        let stored = self.tx.element(t, el.id)?;
-        let newer = stored.as_ref().is_none_or(|p| p.version < el.version);
         let pos = el.coord.map(|c| (c.lat_e7(), c.lon_e7()));
+        let deleted = op == Some(Op::Delete) || !el.visible;
+        let is_node = t == ElementType::Node;
+        if is_node && op.is_none() && el.tags.is_empty() {
+            // An untagged snapshot node: only its position matters. The index keeps the
+            // highest version, so no lookup is needed; this is most of a snapshot.
+            return self.stage(el.id, pos, el.version);
+        }
+        let stored = self.tx.element(t, el.id)?;
+        // In a diff, the state a node version replaces may be known only to the index (an
+        // untagged node); it is the newer of the two.
+        let indexed = if is_node && op.is_some() {
+            self.nodes.get(el.id)?
+        } else {
+            None
+        };
+        let from_index = |i: NodeEntry| Prev {
+            version: i64::from(i.version),
+            ts: None,
+            tags: String::new(),
+            lat_e7: Some(i.coord.lat_e7()),
+            lon_e7: Some(i.coord.lon_e7()),
+            refs: None,
+        };
+        let has_row = stored.is_some();
+        let prev: Option<Prev> = match (stored, indexed) {
+            (Some(s), Some(i)) if i64::from(i.version) > s.version => Some(from_index(i)),
+            (Some(s), _) => Some(s),
+            (None, i) => i.map(from_index),
+        };
+        let newer = prev.as_ref().is_none_or(|p| p.version < el.version);
         let tags = pack_tags(&el.tags);
         let refs = refs_of(el);
-        let deleted = op == Some(Op::Delete) || !el.visible;
         if let Some(op) = op {
-            let prev: Option<&Prev> = stored.as_ref().filter(|p| p.version < el.version);
+            let replaced = prev.as_ref().filter(|p| p.version < el.version);
             if self.tx.put_edit(
                 t,
                 el.id,
@@ -427,44 +834,49 @@ impl OsmSink for StoreSink<'_, '_> {
                 pos,
                 &tags,
                 refs.as_deref(),
-                prev,
+                replaced,
             )? {
                 self.new_edits += 1;
             }
         }
-        if newer {
-            if deleted {
-                // Keep the last known position, tags and refs: they place the deletion and say
-                // what was deleted.
-                let keep = stored.as_ref();
-                let keep_pos = pos.or_else(|| keep.and_then(|p| Some((p.lat_e7?, p.lon_e7?))));
-                self.tx.put_element(
-                    t,
-                    el.id,
-                    el.version,
-                    el.timestamp,
-                    false,
-                    keep_pos,
-                    keep.map_or("", |p| p.tags.as_str()),
-                    keep.and_then(|p| p.refs.as_deref()),
-                )?;
-            } else {
-                self.tx.put_element(
-                    t,
-                    el.id,
-                    el.version,
-                    el.timestamp,
-                    true,
-                    pos,
-                    &tags,
-                    refs.as_deref(),
-                )?;
+        // A snapshot node goes on to the index even when not newer: the index keeps the highest
+        // version anyway.
+        let snapshot_node = is_node && op.is_none();
+        if !newer && !snapshot_node {
+            return Ok(());
+        }
+        // Keep the last known position, tags and refs of a deleted element: they place the
+        // deletion and say what was deleted.
+        let keep = prev.as_ref().filter(|_| deleted);
+        let keep_pos = pos.or_else(|| keep.and_then(|p| Some((p.lat_e7?, p.lon_e7?))));
+        if is_node {
+            self.stage(el.id, keep_pos, el.version)?;
+            if !newer || (!has_row && (deleted || el.tags.is_empty())) {
+                return Ok(());
             }
         }
-        Ok(())
-    }
-
-    fn skipped(&mut self, reason: &'static str) {
-        *self.skipped.entry(reason).or_default() += 1;
+        if deleted {
+            self.tx.put_element(
+                t,
+                el.id,
+                el.version,
+                el.timestamp,
+                false,
+                keep_pos,
+                keep.map_or("", |p| p.tags.as_str()),
+                keep.and_then(|p| p.refs.as_deref()),
+            )
+        } else {
+            self.tx.put_element(
+                t,
+                el.id,
+                el.version,
+                el.timestamp,
+                true,
+                pos,
+                &tags,
+                refs.as_deref(),
+            )
+        }
     }
 }

