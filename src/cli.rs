@@ -63,6 +63,8 @@ pub enum Command {
         #[arg(required = true)]
         inputs: Vec<PathBuf>,
     },
+    /// Follow a replication server: download the diffs (and changeset metadata) after the sequence recorded in the database, check them, ingest them with the new sequence in one transaction; optionally write the report right after.
+    Update(Box<UpdateArgs>),
     /// Analyse a week and write the report folder.
     Report {
         #[arg(long)]
@@ -192,6 +194,125 @@ pub enum Command {
         #[command(flatten)]
         settings: ReportArgs,
     },
+}
+
+/// Arguments of `update`.
+#[derive(Debug, Args)]
+pub struct UpdateArgs {
+    /// State database (created if missing).
+    #[arg(long)]
+    pub db: PathBuf,
+    /// Base URL of a diff replication folder (minute, hour or day) holding state.txt and AAA/BBB/CCC.osc.gz.
+    #[arg(long)]
+    pub source: String,
+    /// Base URL of a changeset replication folder holding state.yaml and AAA/BBB/CCC.osm.gz.
+    #[arg(long)]
+    pub changesets_source: Option<String>,
+    /// At most this many sequences per source in this run (the next run goes on from there).
+    #[arg(long)]
+    pub max_files: Option<u64>,
+    /// Stop before diffs whose state timestamp is later than this (e.g. 2026-11-30T00:00:00Z).
+    #[arg(long, value_parser = parse_time)]
+    pub until: Option<i64>,
+    /// First sequence to fetch when the database has none recorded for a source (default: the server's current one).
+    #[arg(long)]
+    pub from_sequence: Option<u64>,
+    /// Keep only data in this box: min_lon,min_lat,max_lon,max_lat.
+    #[arg(long, conflicts_with = "clip")]
+    pub bbox: Option<crate::ingest::clip::Clip>,
+    /// Keep only data in the polygons of this GeoJSON file.
+    #[arg(long)]
+    pub clip: Option<PathBuf>,
+    /// Longest time for one request in seconds, answer included.
+    #[arg(long, default_value_t = 60)]
+    pub timeout_secs: u64,
+    /// Retries of a request after 5xx, 429, timeouts and connection errors (waits 2 s, 4 s, 8 s...).
+    #[arg(long, default_value_t = 4)]
+    pub retries: u32,
+    /// Write the report into this folder after the update.
+    #[arg(long)]
+    pub report_out: Option<PathBuf>,
+    #[command(flatten)]
+    pub settings: ReportArgs,
+}
+
+fn parse_time(s: &str) -> Result<i64, String> {
+    ingest::xml::parse_timestamp(s)
+        .ok_or_else(|| format!("'{s}' is not a UTC time like 2026-11-30T00:00:00Z"))
+}
+
+impl From<crate::update::UpdateError> for Failure {
+    fn from(e: crate::update::UpdateError) -> Self {
+        use crate::update::UpdateError as E;
+        if let E::Ingest(i) = e {
+            return Self::from(i);
+        }
+        let code = match &e {
+            E::Store(_) => exit::STATE,
+            E::Io { .. } => exit::OUTPUT,
+            _ => exit::BAD_INPUT,
+        };
+        Self {
+            message: format!("{e} (nothing was ingested)"),
+            code,
+        }
+    }
+}
+
+fn update(args: &UpdateArgs, progress: &Progress) -> Result<(), Failure> {
+    use crate::update::{self as up, NetOptions, UpdateOptions};
+    let clip = match (&args.bbox, &args.clip) {
+        (Some(b), _) => Some(b.clone()),
+        (None, Some(p)) => Some(
+            crate::ingest::clip::Clip::from_geojson(p).map_err(|message| Failure {
+                message,
+                code: exit::BAD_INPUT,
+            })?,
+        ),
+        (None, None) => None,
+    };
+    let report_opts = match &args.report_out {
+        Some(_) => {
+            let mut o = args.settings.options()?;
+            o.scoring = scoring(
+                args.settings.model.as_deref(),
+                args.settings.scores.as_deref(),
+            )?;
+            Some(o)
+        }
+        None => None,
+    };
+    let opts = UpdateOptions {
+        source: args.source.clone(),
+        changesets_source: args.changesets_source.clone(),
+        max_files: args.max_files,
+        until: args.until,
+        from_sequence: args.from_sequence,
+        clip,
+        net: NetOptions {
+            timeout: std::time::Duration::from_secs(args.timeout_secs.max(1)),
+            retries: args.retries,
+            ..NetOptions::default()
+        },
+    };
+    let mut store = Store::open(&args.db)?;
+    let s = up::update(&mut store, &opts, progress)?;
+    drop(store);
+    progress.note(&up::run_line("diffs", &s.diffs));
+    if let Some(c) = &s.changesets {
+        progress.note(&up::run_line("changesets", c));
+    }
+    progress.note(&ingest_line(&s.ingest));
+    if s.ingest.clipped > 0 {
+        progress.note(&format!(
+            "{} element(s) and changeset(s) outside the clip area were dropped",
+            s.ingest.clipped
+        ));
+    }
+    match (&args.report_out, report_opts) {
+        (Some(out), Some(o)) => report(&args.db, out, &o, progress),
+        _ => Ok(()),
+    }
 }
 
 /// Settings shared by `report` and `demo`.
@@ -665,6 +786,7 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
             progress.note(&ingest_line(&s));
             Ok(())
         }
+        Command::Update(args) => update(&args, &progress),
         Command::Report { db, out, settings } => {
             let mut opts = settings.options()?;
             opts.scoring = scoring(settings.model.as_deref(), settings.scores.as_deref())?;

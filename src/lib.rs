@@ -31,3 +31,4 @@ pub mod score;
 pub mod store;
 pub mod summary;
 pub mod tiles;
+pub mod update;

@@ -331,6 +331,17 @@ impl Store {
         Ok(IngestTx { tx, path })
     }
 
+    /// A committed `meta` value.
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn meta(&self, key: &str) -> Result<Option<String>, StoreError> {
+        self.conn
+            .query_row("SELECT value FROM meta WHERE key = ?1", [key], |r| r.get(0))
+            .optional()
+            .map_err(|e| self.map_err(e))
+    }
+
     /// Counts of skipped elements by reason.
     ///
     /// # Errors
@@ -405,6 +416,20 @@ impl IngestTx<'_> {
             .execute(
                 "INSERT OR REPLACE INTO meta(key, value) VALUES(?1, ?2)",
                 params![NODES_GENERATION, generation.to_string()],
+            )
+            .map(|_| ())
+            .map_err(|e| self.err(e))
+    }
+
+    /// Sets a `meta` value; it becomes visible at commit (used for replication sequences).
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn set_meta(&self, key: &str, value: &str) -> Result<(), StoreError> {
+        self.tx
+            .execute(
+                "INSERT OR REPLACE INTO meta(key, value) VALUES(?1, ?2)",
+                params![key, value],
             )
             .map(|_| ())
             .map_err(|e| self.err(e))

@@ -14,6 +14,7 @@
 //! ingested twice counts once; overlapping diffs count once too, since edits are unique by
 //! element type, id and version.
 
+pub mod clip;
 pub mod pbf;
 pub mod replication;
 pub mod xml;
@@ -109,6 +110,8 @@ pub struct IngestSummary {
     pub new_edits: u64,
     pub changesets: u64,
     pub skipped_elements: u64,
+    /// Elements and changesets dropped as outside the clip area ([`IngestExtras::clip`]).
+    pub clipped: u64,
     pub bytes: u64,
     pub elapsed_ms: u64,
 }
@@ -397,17 +400,42 @@ pub fn ingest(
     ingest_with(store, inputs, &IngestOptions::default(), progress)
 }
 
-/// Ingests files into the database and the node-location index as one transaction.
+/// What an ingest adds beyond reading its inputs, for `update`.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct IngestExtras<'a> {
+    /// `meta` values written in the ingest's transaction (the replication sequences reached).
+    pub meta: &'a [(String, String)],
+    /// Keep only what lies in this area (see [`clip`]).
+    pub clip: Option<&'a clip::Clip>,
+}
+
+/// Ingests files into the database and the node-location index as one transaction; see
+/// [`ingest_extended`].
+///
+/// # Errors
+/// The first bad file stops the ingest, which is then rolled back.
+pub fn ingest_with(
+    store: &mut Store,
+    inputs: &[PathBuf],
+    options: &IngestOptions,
+    progress: &Progress,
+) -> Result<IngestSummary, IngestError> {
+    ingest_extended(store, inputs, options, &IngestExtras::default(), progress)
+}
+
+/// Ingests files into the database and the node-location index as one transaction, with the
+/// `meta` values and the clip area of `extras`.
 ///
 /// Order: snapshots first, then changeset metadata, then diffs, each group by path (daily and
 /// replication file names sort in time order), so each edit finds the state it replaced.
 ///
 /// # Errors
 /// The first bad file (in that order) stops the ingest, which is then rolled back.
-pub fn ingest_with(
+pub fn ingest_extended(
     store: &mut Store,
     inputs: &[PathBuf],
     options: &IngestOptions,
+    extras: &IngestExtras<'_>,
     progress: &Progress,
 ) -> Result<IngestSummary, IngestError> {
     let started = Instant::now();
@@ -470,6 +498,8 @@ pub fn ingest_with(
             elements: 0,
             changesets: 0,
             new_edits: 0,
+            clipped: 0,
+            clip: extras.clip,
             skipped: std::collections::BTreeMap::new(),
         };
         let root = loop {
@@ -515,6 +545,7 @@ pub fn ingest_with(
         summary.elements += w.elements;
         summary.changesets += w.changesets;
         summary.new_edits += w.new_edits;
+        summary.clipped += w.clipped;
         Ok(())
     })?;
     // The index file of the next generation is complete and in place before the database
@@ -522,6 +553,9 @@ pub fn ingest_with(
     let prepared = nodes.prepare().map_err(StoreError::from)?;
     if let Some(p) = &prepared {
         tx.set_node_generation(p.generation())?;
+    }
+    for (k, v) in extras.meta {
+        tx.set_meta(k, v)?;
     }
     tx.commit()?;
     if let Some(p) = prepared {
@@ -748,6 +782,8 @@ struct Writer<'a, 'b> {
     elements: u64,
     changesets: u64,
     new_edits: u64,
+    clipped: u64,
+    clip: Option<&'a clip::Clip>,
     skipped: std::collections::BTreeMap<&'static str, u64>,
 }
 
@@ -764,13 +800,70 @@ impl Writer<'_, '_> {
     fn apply(&mut self, item: Item) -> Result<(), IngestError> {
         match item {
             Item::Changeset(cs) => {
+                if let Some(c) = self.clip {
+                    if !cs.bbox.is_some_and(|(lo, hi)| c.meets_box(lo, hi)) {
+                        self.clipped += 1;
+                        return Ok(());
+                    }
+                }
                 self.changesets += 1;
                 self.tx.put_changeset(&cs)?;
             }
-            Item::Element(op, el) => self.element(op, &el)?,
+            Item::Element(op, el) => {
+                if let Some(c) = self.clip {
+                    if !self.in_clip(c, &el)? {
+                        self.clipped += 1;
+                        return Ok(());
+                    }
+                }
+                self.element(op, &el)?;
+            }
             Item::Skipped(reason) => *self.skipped.entry(reason).or_default() += 1,
         }
         Ok(())
+    }
+
+    /// Whether an element belongs to the clip area, by the rule in [`clip`].
+    fn in_clip(&self, c: &clip::Clip, el: &RawElement) -> Result<bool, StoreError> {
+        let Some(t) = el.etype else {
+            return Ok(false);
+        };
+        let node_inside = |id: i64| -> Result<bool, StoreError> {
+            Ok(self.nodes.get(id)?.is_some_and(|e| c.contains(e.coord)))
+        };
+        Ok(match t {
+            ElementType::Node => match el.coord {
+                Some(p) => c.contains(p),
+                None => self.nodes.get(el.id)?.is_some() || self.tx.element(t, el.id)?.is_some(),
+            },
+            ElementType::Way => {
+                if self.tx.element(t, el.id)?.is_some() {
+                    return Ok(true);
+                }
+                for &r in &el.refs {
+                    if node_inside(r)? {
+                        return Ok(true);
+                    }
+                }
+                false
+            }
+            ElementType::Relation => {
+                if self.tx.element(t, el.id)?.is_some() {
+                    return Ok(true);
+                }
+                for &(mt, id) in &el.members {
+                    let inside = match mt {
+                        ElementType::Node => node_inside(id)?,
+                        ElementType::Way => self.tx.element(mt, id)?.is_some(),
+                        ElementType::Relation => false,
+                    };
+                    if inside {
+                        return Ok(true);
+                    }
+                }
+                false
+            }
+        })
     }
 
     fn stage(&mut self, id: i64, pos: Option<(i32, i32)>, version: i64) -> Result<(), StoreError> {
