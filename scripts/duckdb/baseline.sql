@@ -176,9 +176,9 @@ WITH ranked AS (
 )
 SELECT j.region, j.kind, j.cell, j.cell_hex, j.observed, j.expected, j.p_value, j.q_value,
        j.own_history = 1 AS own_history,
-       j.raw_outlier AND NOT (j.kind = 'score_hotspot' AND EXISTS (
-           SELECT 1 FROM judged o
-           WHERE o.cell = j.cell AND o.kind <> 'score_hotspot' AND o.raw_outlier)) AS outlier
+       j.raw_outlier AND NOT (j.kind = 'score_hotspot' AND max(
+           CASE WHEN j.kind <> 'score_hotspot' AND j.raw_outlier THEN 1 ELSE 0 END
+       ) OVER (PARTITION BY j.cell) = 1) AS outlier
 FROM judged j;
 
 -- The report week's counts per region; edits that could not be placed count in the first.

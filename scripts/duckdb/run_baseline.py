@@ -111,6 +111,7 @@ def main():
         return x
 
     out = {
+        "caution": manifest.get("caution", ""),
         "duckdb": duckdb.__version__,
         "week": week,
         "history_weeks": history,

@@ -126,14 +126,26 @@ pub struct Skipped {
     pub count: u64,
 }
 
-/// `export.json`: what an export holds and how it was counted.
+/// The cautions every export carries: scores and flags name mappers.
+pub const CAUTION: &str = "Scores, flags and outliers are statistical prompts, not verdicts: look at the edits, assume good faith, talk to the mapper first, and follow the local community's and the OpenStreetMap Foundation's guidelines on reverts and disputes.";
+
+const fn default_neighbourhood_k() -> u32 {
+    2
+}
+
+/// `export.json`: what an export holds and how it was counted. An engine writing the same
+/// tables needs only the fields without a default.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Manifest {
     /// Always [`FORMAT`].
     pub format: String,
     /// Always [`VERSION`].
     pub version: u32,
-    /// `hexvigil <version>`.
+    /// [`CAUTION`].
+    #[serde(default)]
+    pub caution: String,
+    /// `hexvigil <version>`, or the engine that wrote the tables.
+    #[serde(default)]
     pub generator: String,
     /// H3 resolution of every cell.
     pub resolution: u8,
@@ -151,16 +163,22 @@ pub struct Manifest {
     /// Changesets scoring at least this are flagged (`flagged`, `flagged_edits`).
     pub flag_threshold: f64,
     /// What scored the changesets: `scorecard`, `model` or `imported`.
+    #[serde(default)]
     pub scoring: String,
     /// The land layer behind `offshore_creates` and `water_creates`: `world`, a file, or `none`.
+    #[serde(default)]
     pub land: String,
     /// Grid-disk radius of `cell_neighbours` (with the parent cell's other children).
+    #[serde(default = "default_neighbourhood_k")]
     pub neighbourhood_k: u32,
     /// Region names in order (the `region` column); the first also takes unplaced edits.
+    #[serde(default)]
     pub regions: Vec<String>,
     /// Elements skipped while reading the OSM files.
+    #[serde(default)]
     pub skipped: Vec<Skipped>,
     /// Rows per table.
+    #[serde(default)]
     pub rows: BTreeMap<String, u64>,
 }
 
@@ -534,6 +552,7 @@ pub fn export(
     let manifest = Manifest {
         format: FORMAT.to_owned(),
         version: VERSION,
+        caution: CAUTION.to_owned(),
         generator: format!("hexvigil {}", env!("CARGO_PKG_VERSION")),
         resolution: summary.resolution,
         first_week,
@@ -1186,6 +1205,7 @@ mod tests {
         Manifest {
             format: FORMAT.to_owned(),
             version: VERSION,
+            caution: CAUTION.to_owned(),
             generator: "test".to_owned(),
             resolution: 8,
             first_week: counted.first_week,
@@ -1251,6 +1271,62 @@ mod tests {
         assert_eq!(one.cell_weeks.weeks, 1);
         assert_eq!(one.changeset_cells.len(), 3);
         assert!(one.changeset_cells.iter().all(|r| r.week == 0));
+    }
+
+    #[test]
+    fn every_column_is_documented() {
+        let doc = include_str!("../../docs/export.md");
+        let tables = [
+            ("cell_weeks", cell_week_table(&[])),
+            ("cell_week_changesets", detail_table(&[])),
+            ("changesets", changeset_table(&[], 0.5)),
+            ("cell_neighbours", neighbour_table(&[])),
+        ];
+        for (table, columns) in tables {
+            let section = doc
+                .split(&format!("### `{table}`"))
+                .nth(1)
+                .and_then(|s| s.split("\n### ").next())
+                .unwrap();
+            for c in columns {
+                assert!(
+                    section.contains(&format!("`{}`", c.name)),
+                    "docs/export.md, table {table}, lacks column {}",
+                    c.name
+                );
+            }
+        }
+        let manifest = serde_json::to_value(manifest(&sample().0, &[])).unwrap();
+        for field in manifest.as_object().unwrap().keys() {
+            assert!(
+                doc.contains(&format!("`{field}`")),
+                "export.json field {field}"
+            );
+        }
+    }
+
+    #[test]
+    fn minimal_manifest_from_another_engine_loads() {
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(
+            dir.path().join(MANIFEST),
+            r#"{"format": "hexvigil-export", "version": 1, "resolution": 7,
+                "first_week": "2026-W01", "last_week": "2026-W10",
+                "data_first_week": "2025-W40", "default_week": "2026-W09",
+                "flag_threshold": 0.5}"#,
+        )
+        .unwrap();
+        let m = Manifest::load(dir.path()).unwrap();
+        assert_eq!(m.neighbourhood_k, 2);
+        assert!(m.skipped.is_empty());
+        assert_eq!(m.default_week.to_string(), "2026-W09");
+        std::fs::write(
+            dir.path().join(MANIFEST),
+            r#"{"format": "hexvigil-export", "version": 2}"#,
+        )
+        .unwrap();
+        let e = Manifest::load(dir.path()).unwrap_err();
+        assert!(e.to_string().contains("line 1, column"), "{e}");
     }
 
     #[test]
