@@ -2,7 +2,9 @@
 # Installs what the test suite needs beyond the Rust toolchain: Debian's Chromium, which the
 # browser tests use to open the generated report from disk, and the npm package
 # playwright-core (pinned in tests/browser/package-lock.json) that drives it. No browser is
-# downloaded: tests/browser/check_report.mjs runs /usr/bin/chromium. Safe to run again.
+# downloaded: tests/browser/check_report.mjs runs /usr/bin/chromium. It also installs DuckDB's
+# Python package (pinned below) from PyPI for tests/export.rs, which runs
+# scripts/duckdb/run_baseline.py over an export. Safe to run again.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 if ! command -v chromium >/dev/null 2>&1; then
@@ -20,3 +22,9 @@ if ! cmp -s tests/browser/package-lock.json "$stamp"; then
     cp tests/browser/package-lock.json "$stamp"
 fi
 node -e "process.stdout.write('playwright-core ' + require('./tests/browser/node_modules/playwright-core/package.json').version + '\n')"
+# DuckDB for the export test; skipped when the pinned version is already there.
+DUCKDB_VERSION=1.5.6
+if ! python3 -c "import duckdb, sys; sys.exit(duckdb.__version__ != '$DUCKDB_VERSION')" 2>/dev/null; then
+    python3 -m pip install --quiet --disable-pip-version-check --root-user-action=ignore "duckdb==$DUCKDB_VERSION"
+fi
+python3 -c "import duckdb; print('duckdb', duckdb.__version__)"

@@ -1,14 +1,16 @@
 //! Buckets every placed edit into an H3 cell (at one resolution per run) and an ISO week, and
-//! sums what the detectors measure per cell-week. For the report week it also keeps which
-//! changesets contributed to each measure, so every outlier can name them.
+//! sums what the detectors measure per cell-week. Each changeset's share of a cell-week
+//! ([`ChangesetCellWeek`]) is kept too: it gives the distinct counts of a region and the
+//! changesets behind every outlier, and it is what an export carries for other engines.
 
 use std::collections::{BTreeMap, HashMap};
 
 use h3o::{CellIndex, LatLng, Resolution};
 
 use crate::features::EditFacts;
-use crate::locate::Edit;
+use crate::locate::{count_placement, Edit};
 use crate::model::Op;
+use crate::summary::Placement;
 
 /// The outlier kinds and the count each one tests.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -115,8 +117,6 @@ pub struct CellWeeks {
     pub weeks: usize,
     /// Per cell, one entry per week (sorted by cell for deterministic output).
     pub cells: BTreeMap<CellIndex, Vec<CellWeek>>,
-    /// Report week only: per cell and kind, each changeset's contribution.
-    pub contributions: HashMap<(CellIndex, Kind), BTreeMap<i64, u64>>,
 }
 
 impl CellWeeks {
@@ -149,7 +149,6 @@ pub fn aggregate(
     flag_threshold: f64,
 ) -> CellWeeks {
     let mut cells: BTreeMap<CellIndex, Vec<CellWeek>> = BTreeMap::new();
-    let mut contributions: HashMap<(CellIndex, Kind), BTreeMap<i64, u64>> = HashMap::new();
     for ((e, f), w) in edits.iter().zip(facts).zip(week_of) {
         let (Some(w), Some(pos)) = (*w, e.pos) else {
             continue;
@@ -189,22 +188,6 @@ pub fn aggregate(
         if f.newcomer {
             cw.newcomers.push(e.uid);
         }
-        if w + 1 == weeks {
-            let mut add = |k: Kind, hit: bool| {
-                if hit {
-                    *contributions
-                        .entry((cell, k))
-                        .or_default()
-                        .entry(e.changeset)
-                        .or_default() += 1;
-                }
-            };
-            add(Kind::DeletionBurst, f.deleted_feature);
-            add(Kind::NewcomerSurge, f.newcomer);
-            add(Kind::OffshoreFabrication, f.offshore_create);
-            add(Kind::RenameSpam, f.spam_rename);
-            add(Kind::ScoreHotspot, is_flagged);
-        }
     }
     for weeks in cells.values_mut() {
         for cw in weeks {
@@ -219,8 +202,115 @@ pub fn aggregate(
         resolution: res,
         weeks,
         cells,
-        contributions,
     }
+}
+
+/// One changeset's edits in one cell and week of the window (or its edits that could not be
+/// placed, `cell: None`), and what they count toward.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct ChangesetCellWeek {
+    /// Week index in the window (the last is the report week).
+    pub week: usize,
+    /// `None` for edits that could not be placed.
+    pub cell: Option<CellIndex>,
+    pub changeset: i64,
+    /// The changeset's mapper.
+    pub uid: i64,
+    pub creates: u64,
+    pub modifies: u64,
+    pub deletes: u64,
+    /// Edits made while the mapper was a newcomer (so the mapper counts as one here).
+    pub newcomer_edits: u64,
+    /// The changeset's share of each kind's count ([`CellWeek::value`], edits for the newcomer
+    /// kind).
+    pub deleted_features: u64,
+    pub offshore_creates: u64,
+    pub spam_renames: u64,
+    pub flagged_edits: u64,
+    /// How these edits got their position.
+    pub placement: Placement,
+}
+
+impl ChangesetCellWeek {
+    /// All edits.
+    #[must_use]
+    pub const fn edits(&self) -> u64 {
+        self.creates + self.modifies + self.deletes
+    }
+
+    /// The changeset's contribution to a kind's count: its edits counting toward it.
+    #[must_use]
+    pub const fn contribution(&self, k: Kind) -> u64 {
+        match k {
+            Kind::DeletionBurst => self.deleted_features,
+            Kind::NewcomerSurge => self.newcomer_edits,
+            Kind::OffshoreFabrication => self.offshore_creates,
+            Kind::RenameSpam => self.spam_renames,
+            Kind::ScoreHotspot => self.flagged_edits,
+        }
+    }
+}
+
+/// Each changeset's share of each cell-week (arguments as for [`aggregate`]), sorted by week,
+/// cell (unplaced first) and changeset.
+#[must_use]
+pub fn changeset_cell_weeks(
+    edits: &[Edit],
+    facts: &[EditFacts],
+    week_of: &[Option<usize>],
+    res: Resolution,
+    score: &dyn Fn(i64) -> f64,
+    flag_threshold: f64,
+) -> Vec<ChangesetCellWeek> {
+    let mut rows: BTreeMap<(usize, Option<CellIndex>, i64), ChangesetCellWeek> = BTreeMap::new();
+    for ((e, f), w) in edits.iter().zip(facts).zip(week_of) {
+        let Some(week) = *w else { continue };
+        let cell = e.pos.and_then(|p| cell_of(p, res));
+        let r = rows
+            .entry((week, cell, e.changeset))
+            .or_insert_with(|| ChangesetCellWeek {
+                week,
+                cell,
+                changeset: e.changeset,
+                uid: e.uid,
+                ..ChangesetCellWeek::default()
+            });
+        match e.op {
+            Op::Create => r.creates += 1,
+            Op::Modify => r.modifies += 1,
+            Op::Delete => r.deletes += 1,
+        }
+        r.newcomer_edits += u64::from(f.newcomer);
+        r.deleted_features += u64::from(f.deleted_feature);
+        r.offshore_creates += u64::from(f.offshore_create);
+        r.spam_renames += u64::from(f.spam_rename);
+        r.flagged_edits += u64::from(score(e.changeset) >= flag_threshold);
+        count_placement(&mut r.placement, e.placed_by);
+    }
+    rows.into_values().collect()
+}
+
+/// Per cell and kind, each changeset's contribution in week `week` (changesets contributing
+/// nothing are left out).
+#[must_use]
+pub fn contributions(
+    rows: &[ChangesetCellWeek],
+    week: usize,
+) -> HashMap<(CellIndex, Kind), BTreeMap<i64, u64>> {
+    let mut out: HashMap<(CellIndex, Kind), BTreeMap<i64, u64>> = HashMap::new();
+    for r in rows.iter().filter(|r| r.week == week) {
+        let Some(cell) = r.cell else { continue };
+        for k in Kind::ALL {
+            let n = r.contribution(k);
+            if n > 0 {
+                *out.entry((cell, k))
+                    .or_default()
+                    .entry(r.changeset)
+                    .or_default() += n;
+            }
+        }
+    }
+    out
 }
 
 #[cfg(test)]

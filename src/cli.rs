@@ -7,6 +7,7 @@ use clap::{Args, Parser, Subcommand};
 
 use crate::demo::{self, DemoOptions};
 use crate::evaluate::{EvaluateError, EvaluateOptions};
+use crate::export::{ExportError, Format};
 use crate::features::{FeatureConfig, FeatureContext, FEATURES};
 use crate::fit::{FitError, Model};
 use crate::ingest::replication::SequenceRange;
@@ -15,7 +16,7 @@ use crate::labels::{LabelOptions, LabelsFileError};
 use crate::land::{Land, LandError};
 use crate::measure::Measure;
 use crate::model::IsoWeek;
-use crate::pipeline::{self, PipelineError, ReportOptions};
+use crate::pipeline::{self, Analysis, PipelineError, ReportOptions};
 use crate::progress::Progress;
 use crate::render::{Colormap, Style, StyleError};
 use crate::score::Scoring;
@@ -67,8 +68,12 @@ pub enum Command {
     Update(Box<UpdateArgs>),
     /// Analyse a week and write the report folder.
     Report {
-        #[arg(long)]
-        db: PathBuf,
+        /// State database.
+        #[arg(long, required_unless_present = "cell_weeks")]
+        db: Option<PathBuf>,
+        /// Read the counts from an export folder (`hexvigil export`, or the same tables made by another engine) instead of a database; changesets keep the export's scores.
+        #[arg(long, conflicts_with_all = ["db", "model", "scores"])]
+        cell_weeks: Option<PathBuf>,
         /// Report folder.
         #[arg(long)]
         out: PathBuf,
@@ -171,8 +176,11 @@ pub enum Command {
     /// Analyse a week and write an XYZ tile pyramid of one measure, with tiles.json, viewer.html and optionally an MBTiles file.
     Tiles {
         /// State database (only read).
-        #[arg(long)]
-        db: PathBuf,
+        #[arg(long, required_unless_present = "cell_weeks")]
+        db: Option<PathBuf>,
+        /// Read the counts from an export folder instead of a database (as `report --cell-weeks`).
+        #[arg(long, conflicts_with_all = ["db", "model", "scores"])]
+        cell_weeks: Option<PathBuf>,
         /// Folder for {z}/{x}/{y}.png, tiles.json and viewer.html (its old zoom folders are replaced).
         #[arg(long)]
         out: PathBuf,
@@ -194,6 +202,49 @@ pub enum Command {
         #[command(flatten)]
         settings: ReportArgs,
     },
+    /// Export cell-week counts, each changeset's share of them, scored changesets and cell neighbourhoods as Parquet, partitioned by week and H3 base cell, for DuckDB, Spark or another engine.
+    Export {
+        /// State database (only read).
+        #[arg(long)]
+        db: PathBuf,
+        /// Export folder (new, empty, or an earlier export, which is replaced).
+        #[arg(long)]
+        out: PathBuf,
+        /// Output format.
+        #[arg(long, default_value = "parquet")]
+        format: Format,
+        #[command(flatten)]
+        settings: ExportArgs,
+    },
+}
+
+/// Settings of `export`.
+#[derive(Debug, Args, Clone)]
+pub struct ExportArgs {
+    /// Export only the weeks a report of this ISO week reads (it and --baseline-weeks before it); default: every week in the database.
+    #[arg(long, value_parser = parse_week)]
+    pub week: Option<IsoWeek>,
+    /// Weeks of history exported with --week.
+    #[arg(long, default_value_t = 12, value_parser = clap::value_parser!(u32).range(1..=104), requires = "week")]
+    pub baseline_weeks: u32,
+    /// GeoJSON polygons with a `name` property: fills the `region` column.
+    #[arg(long)]
+    pub regions: Option<PathBuf>,
+    /// Land layer for the water and offshore counts: `world`, a GeoJSON file, or `none`; use the same as for reports.
+    #[arg(long, default_value = "world")]
+    pub land: crate::land::LandSource,
+    /// H3 resolution 5-10 (default: as `report` would choose for the last complete week).
+    #[arg(long, value_parser = parse_resolution)]
+    pub resolution: Option<h3o::Resolution>,
+    /// Changesets scoring at or above this are flagged.
+    #[arg(long, default_value_t = 0.5)]
+    pub flag_threshold: f64,
+    /// Score changesets with this model file (from `fit`) instead of the default scorecard.
+    #[arg(long, conflicts_with = "scores")]
+    pub model: Option<PathBuf>,
+    /// Take changeset scores from this CSV (`changeset_id,score`).
+    #[arg(long)]
+    pub scores: Option<PathBuf>,
 }
 
 /// Arguments of `update`.
@@ -310,7 +361,7 @@ fn update(args: &UpdateArgs, progress: &Progress) -> Result<(), Failure> {
         ));
     }
     match (&args.report_out, report_opts) {
-        (Some(out), Some(o)) => report(&args.db, out, &o, progress),
+        (Some(out), Some(o)) => report(&Source::Db(&args.db), out, &o, progress),
         _ => Ok(()),
     }
 }
@@ -430,6 +481,21 @@ impl ReportArgs {
     }
 }
 
+impl ExportArgs {
+    fn options(&self) -> Result<ReportOptions, Failure> {
+        Ok(ReportOptions {
+            week: self.week,
+            regions: self.regions.clone(),
+            land: self.land.clone(),
+            resolution: self.resolution,
+            baseline_weeks: self.baseline_weeks,
+            flag_threshold: self.flag_threshold,
+            scoring: scoring(self.model.as_deref(), self.scores.as_deref())?,
+            ..ReportOptions::default()
+        })
+    }
+}
+
 /// A failed command: the message to print and the exit code.
 #[derive(Debug)]
 pub struct Failure {
@@ -512,6 +578,11 @@ impl From<PipelineError> for Failure {
             PipelineError::Land(_) | PipelineError::Region(_) => exit::BAD_INPUT,
             PipelineError::NoData { .. } => exit::NO_DATA,
             PipelineError::Render(_) | PipelineError::Report(_) => exit::OUTPUT,
+            PipelineError::Export(e) => match e {
+                ExportError::Write { .. } | ExportError::Folder { .. } => exit::OUTPUT,
+                ExportError::NoData { .. } => exit::NO_DATA,
+                _ => exit::BAD_INPUT,
+            },
         };
         Self {
             message: e.to_string(),
@@ -561,9 +632,44 @@ fn ingest_line(s: &IngestSummary) -> String {
     }
 }
 
-fn report(db: &Path, out: &Path, opts: &ReportOptions, progress: &Progress) -> Result<(), Failure> {
-    let store = Store::open(db)?;
-    let mut analysis = pipeline::analyse(&store, opts, progress)?;
+/// Where a report's counts come from.
+enum Source<'a> {
+    /// A state database.
+    Db(&'a Path),
+    /// An export folder.
+    Export(&'a Path),
+}
+
+impl<'a> Source<'a> {
+    fn from_args(db: Option<&'a Path>, cell_weeks: Option<&'a Path>) -> Result<Self, Failure> {
+        match (db, cell_weeks) {
+            (_, Some(dir)) => Ok(Self::Export(dir)),
+            (Some(db), None) => Ok(Self::Db(db)),
+            (None, None) => Err(Failure {
+                message: "--db or --cell-weeks is required".to_owned(),
+                code: exit::BAD_INPUT,
+            }),
+        }
+    }
+
+    fn analyse(&self, opts: &ReportOptions, progress: &Progress) -> Result<Analysis, Failure> {
+        match self {
+            Self::Db(db) => {
+                let store = Store::open(db)?;
+                Ok(pipeline::analyse(&store, opts, progress)?)
+            }
+            Self::Export(dir) => Ok(pipeline::analyse_export(dir, opts, progress)?),
+        }
+    }
+}
+
+fn report(
+    source: &Source<'_>,
+    out: &Path,
+    opts: &ReportOptions,
+    progress: &Progress,
+) -> Result<(), Failure> {
+    let mut analysis = source.analyse(opts, progress)?;
     pipeline::write(&mut analysis, out, opts)?;
     for r in &analysis.summary.regions {
         progress.note(&format!(
@@ -583,14 +689,13 @@ fn report(db: &Path, out: &Path, opts: &ReportOptions, progress: &Progress) -> R
 }
 
 fn tiles(
-    db: &Path,
+    source: &Source<'_>,
     out: &Path,
     opts: &ReportOptions,
     tile_opts: &TileOptions,
     progress: &Progress,
 ) -> Result<(), Failure> {
-    let store = Store::open(db)?;
-    let analysis = pipeline::analyse(&store, opts, progress)?;
+    let analysis = source.analyse(opts, progress)?;
     let s = crate::tiles::write_tiles(&analysis, opts, tile_opts, out, progress)?;
     let per_zoom: Vec<String> = s
         .per_zoom
@@ -607,6 +712,34 @@ fn tiles(
     ));
     if let Some(mb) = &tile_opts.mbtiles {
         progress.note(&format!("MBTiles written to {}", mb.display()));
+    }
+    Ok(())
+}
+
+fn export(
+    db: &Path,
+    out: &Path,
+    format: Format,
+    opts: &ReportOptions,
+    progress: &Progress,
+) -> Result<(), Failure> {
+    let store = Store::open(db)?;
+    match format {
+        Format::Parquet => {
+            let s = crate::export::export(&store, out, opts, progress)?;
+            let rows: Vec<String> = s.rows.iter().map(|(t, n)| format!("{t}: {n}")).collect();
+            #[allow(clippy::cast_precision_loss, reason = "display only")]
+            let mib = s.bytes as f64 / 1_048_576.0;
+            progress.note(&format!(
+                "exported {} to {} at H3 resolution {}: {} Parquet files, {mib:.1} MiB ({}) in {}",
+                s.first_week,
+                s.last_week,
+                s.resolution,
+                s.files,
+                rows.join(", "),
+                out.display()
+            ));
+        }
     }
     Ok(())
 }
@@ -787,13 +920,26 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
             Ok(())
         }
         Command::Update(args) => update(&args, &progress),
-        Command::Report { db, out, settings } => {
+        Command::Report {
+            db,
+            cell_weeks,
+            out,
+            settings,
+        } => {
             let mut opts = settings.options()?;
             opts.scoring = scoring(settings.model.as_deref(), settings.scores.as_deref())?;
-            report(&db, &out, &opts, &progress)
+            let source = Source::from_args(db.as_deref(), cell_weeks.as_deref())?;
+            report(&source, &out, &opts, &progress)
         }
+        Command::Export {
+            db,
+            out,
+            format,
+            settings,
+        } => export(&db, &out, format, &settings.options()?, &progress),
         Command::Tiles {
             db,
+            cell_weeks,
             out,
             zoom,
             measure,
@@ -809,7 +955,8 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 base_url,
                 max_tiles,
             };
-            tiles(&db, &out, &settings.options()?, &opts, &progress)
+            let source = Source::from_args(db.as_deref(), cell_weeks.as_deref())?;
+            tiles(&source, &out, &settings.options()?, &opts, &progress)
         }
         Command::Labels {
             db,
@@ -899,13 +1046,19 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 ..ReportOptions::default()
             };
             let report_dir = out.join("report");
-            report(&db, &report_dir, &opts, &progress)?;
+            report(&Source::Db(&db), &report_dir, &opts, &progress)?;
             // The town scale of the demo: zoom 9 shows the whole coast, 14 single streets.
             let tile_opts = TileOptions {
                 zooms: ZoomRange { min: 9, max: 14 },
                 ..TileOptions::default()
             };
-            tiles(&db, &report_dir.join("tiles"), &opts, &tile_opts, &progress)
+            tiles(
+                &Source::Db(&db),
+                &report_dir.join("tiles"),
+                &opts,
+                &tile_opts,
+                &progress,
+            )
         }
     }
 }

@@ -11,6 +11,7 @@ pub mod cli;
 pub mod demo;
 pub mod detect;
 pub mod evaluate;
+pub mod export;
 pub mod features;
 pub mod fit;
 pub mod geojson_io;

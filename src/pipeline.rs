@@ -9,19 +9,19 @@ use std::path::{Path, PathBuf};
 
 use h3o::{CellIndex, LatLng, Resolution};
 
-use crate::cells::{aggregate, CellWeeks};
+use crate::cells::{aggregate, changeset_cell_weeks, CellWeeks, ChangesetCellWeek};
 use crate::detect::{detect, DetectConfig};
 use crate::features::{changeset_features, edit_facts, ExistingData, FeatureConfig, MapperHistory};
 use crate::labels::RevertIndex;
 use crate::land::{Land, LandError, LandSource};
-use crate::locate::{count_placement, load_edits};
+use crate::locate::load_edits;
 use crate::measure::{heat_cells, Measure};
-use crate::model::{IsoWeek, Op};
+use crate::model::IsoWeek;
 use crate::progress::Progress;
 use crate::regions::{Region, RegionError};
 use crate::render::{HeatMap, RenderError, Style};
 use crate::report::{PageContext, ReportError};
-use crate::score::{Scored, Scoring};
+use crate::score::Scoring;
 use crate::store::{Store, StoreError};
 use crate::summary::{
     BaselineCounts, ChangesetRow, Counts, FlaggedChangeset, Outlier, Placement, RegionReport,
@@ -41,6 +41,8 @@ pub enum PipelineError {
     Render(#[from] RenderError),
     #[error(transparent)]
     Report(#[from] ReportError),
+    #[error(transparent)]
+    Export(#[from] crate::export::ExportError),
     #[error("{path}: {message}")]
     NoData { path: PathBuf, message: String },
 }
@@ -159,54 +161,130 @@ fn pad(r: geo::Rect<f64>) -> geo::Rect<f64> {
     )
 }
 
-/// Runs every analysis stage.
+/// What the report lists about a changeset, with its score: the same whether counted from the
+/// database or read from an export.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ScoredChangeset {
+    pub id: i64,
+    pub uid: i64,
+    pub user: String,
+    /// Unix seconds: the changeset's creation, or its first edit if earlier.
+    pub created_at: i64,
+    /// Days since the mapper's first changeset seen, at the changeset.
+    pub account_age_days: f64,
+    pub comment: String,
+    pub editor: String,
+    /// Score in [0, 1].
+    pub score: f64,
+    /// Plain-words reasons, strongest first.
+    pub reasons: Vec<String>,
+}
+
+/// A window of consecutive ISO weeks counted cell by cell, the last being the report week:
+/// everything the per-region steps read. [`count`] makes it from the database; an export
+/// ([`crate::export`]) holds it for other engines and gives it back.
+#[derive(Debug, Clone)]
+pub struct Counted {
+    /// The window's first week.
+    pub first_week: IsoWeek,
+    /// Cell-week counts over the window.
+    pub cell_weeks: CellWeeks,
+    /// Each changeset's share of each cell-week, unplaced edits included (`cell: None`).
+    pub changeset_cells: Vec<ChangesetCellWeek>,
+    /// Every changeset with an edit in the window.
+    pub changesets: HashMap<i64, ScoredChangeset>,
+}
+
+impl Counted {
+    /// The window's last week.
+    #[must_use]
+    pub fn report_week(&self) -> IsoWeek {
+        self.first_week
+            .offset(i64::try_from(self.cell_weeks.weeks).unwrap_or(1) - 1)
+    }
+}
+
+/// Weeks of history behind report week `week`: `baseline_weeks`, or fewer when the data starts
+/// later (weeks before the first edit stored are unknown, not empty).
+#[must_use]
+pub fn history_weeks(week: IsoWeek, data_first_week: Option<IsoWeek>, baseline_weeks: u32) -> u32 {
+    let known = data_first_week.map_or(0, |f| (week.ordinal() - f.ordinal()).max(0));
+    baseline_weeks.min(u32::try_from(known).unwrap_or(u32::MAX))
+}
+
+/// The week of the first edit stored, if any.
 ///
 /// # Errors
-/// On database failure, unreadable land or regions files, or when there is no data.
-#[allow(
-    clippy::too_many_lines,
-    reason = "one linear pipeline, easier to read whole"
-)]
-pub fn analyse(
-    store: &Store,
-    opts: &ReportOptions,
-    progress: &Progress,
-) -> Result<Analysis, PipelineError> {
-    let week = match opts.week {
-        Some(w) => w,
-        None => default_week(store)?,
-    };
-    // History starts with the data: weeks before the first edit stored are unknown, not empty.
+/// On database failure.
+pub fn data_first_week(store: &Store) -> Result<Option<IsoWeek>, PipelineError> {
     let first_ts: Option<i64> = store
         .conn()
         .query_row("SELECT MIN(ts) FROM edits", [], |r| r.get(0))
         .map_err(|e| store.map_err(e))?;
-    let known = first_ts
-        .and_then(IsoWeek::of_unix)
-        .map_or(0, |f| (week.ordinal() - f.ordinal()).max(0));
-    let n_hist = opts
-        .baseline_weeks
-        .min(u32::try_from(known).unwrap_or(u32::MAX));
-    let first_week = week.offset(-i64::from(n_hist));
-    let weeks = n_hist as usize + 1;
-    let from = first_week.start_unix();
-    let to = week.offset(1).start_unix();
-    progress.note(&format!(
-        "report week {week}, baseline {first_week} to {}",
-        week.offset(-1)
-    ));
+    Ok(first_ts.and_then(IsoWeek::of_unix))
+}
 
-    let land = opts.land.load()?;
-    let regions: Vec<Region> = match &opts.regions {
+/// The weeks from the first to the last edit stored.
+///
+/// # Errors
+/// On database failure, or [`PipelineError::NoData`] when there are no edits.
+pub fn data_weeks(store: &Store) -> Result<(IsoWeek, IsoWeek), PipelineError> {
+    let (first, last): (Option<i64>, Option<i64>) = store
+        .conn()
+        .query_row("SELECT MIN(ts), MAX(ts) FROM edits", [], |r| {
+            Ok((r.get(0)?, r.get(1)?))
+        })
+        .map_err(|e| store.map_err(e))?;
+    first
+        .and_then(IsoWeek::of_unix)
+        .zip(last.and_then(IsoWeek::of_unix))
+        .ok_or_else(|| PipelineError::NoData {
+            path: store.path().to_owned(),
+            message: "no edits in the database: ingest osmChange files first".to_owned(),
+        })
+}
+
+/// The report week `opts.week`, or by default the last complete week in the data.
+///
+/// # Errors
+/// On database failure or when there are no edits.
+pub fn report_week(store: &Store, opts: &ReportOptions) -> Result<IsoWeek, PipelineError> {
+    match opts.week {
+        Some(w) => Ok(w),
+        None => default_week(store),
+    }
+}
+
+fn load_regions(opts: &ReportOptions) -> Result<Vec<Region>, PipelineError> {
+    Ok(match &opts.regions {
         Some(p) => crate::regions::load(p)?,
         None => crate::regions::everything(),
-    };
+    })
+}
 
+/// Counts the weeks `first_week` to `last_week` from the database: loads and places their edits,
+/// scores the changesets (with `opts.scoring`, flagging at `opts.flag_threshold`) and buckets
+/// the edits into cells at `opts.resolution`, or by default at the resolution suited to the
+/// area edited in `resolution_week`.
+///
+/// # Errors
+/// On database failure, or [`PipelineError::NoData`] when `last_week` has no edits.
+pub fn count(
+    store: &Store,
+    first_week: IsoWeek,
+    last_week: IsoWeek,
+    resolution_week: IsoWeek,
+    land: &Land,
+    opts: &ReportOptions,
+) -> Result<Counted, PipelineError> {
+    let weeks = usize::try_from(last_week.ordinal() - first_week.ordinal() + 1).unwrap_or(0);
+    let from = first_week.start_unix();
+    let to = last_week.offset(1).start_unix();
     let (edits, metas) = load_edits(store, from, to)?;
-    if !edits.iter().any(|e| e.ts >= week.start_unix()) {
+    if !edits.iter().any(|e| e.ts >= last_week.start_unix()) {
         return Err(PipelineError::NoData {
             path: store.path().to_owned(),
-            message: format!("no edits in the report week {week}"),
+            message: format!("no edits in the report week {last_week}"),
         });
     }
     let mut first_edit: HashMap<i64, i64> = HashMap::new();
@@ -221,15 +299,28 @@ pub fn analyse(
     let reverts = RevertIndex::load(store)?;
     let existing = ExistingData::load(store)?;
     let hist = MapperHistory::load(store, uids, &reverts)?;
-    let facts = edit_facts(&edits, &hist, &first_edit, &land, &existing, &opts.features);
+    let facts = edit_facts(&edits, &hist, &first_edit, land, &existing, &opts.features);
     let features = changeset_features(&edits, &facts, &metas, &hist, &first_edit);
-    let scored: HashMap<i64, (Scored, usize)> = features
+    let changesets: HashMap<i64, ScoredChangeset> = features
         .iter()
-        .enumerate()
-        .map(|(i, f)| (f.id, (opts.scoring.score(f), i)))
+        .map(|f| {
+            let s = opts.scoring.score(f);
+            let c = ScoredChangeset {
+                id: f.id,
+                uid: f.uid,
+                user: f.user.clone(),
+                created_at: f.created_at,
+                account_age_days: f.account_age_days,
+                comment: f.comment.clone(),
+                editor: f.editor.clone(),
+                score: s.score,
+                reasons: s.reasons.into_iter().map(|r| r.1).collect(),
+            };
+            (f.id, c)
+        })
         .collect();
     let threshold = opts.flag_threshold;
-    let score_of = |cs: i64| scored.get(&cs).map_or(0.0, |s| s.0.score);
+    let score_of = |cs: i64| changesets.get(&cs).map_or(0.0, |s| s.score);
 
     let week_of: Vec<Option<usize>> = edits
         .iter()
@@ -238,13 +329,13 @@ pub fn analyse(
             usize::try_from(w).ok().filter(|&w| w < weeks)
         })
         .collect();
-    let report_idx = weeks - 1;
+    let res_idx = usize::try_from(resolution_week.ordinal() - first_week.ordinal()).ok();
     let res = opts.resolution.unwrap_or_else(|| {
         let ext = bbox_of(
             edits
                 .iter()
                 .zip(&week_of)
-                .filter(|(_, w)| **w == Some(report_idx))
+                .filter(|(_, w)| **w == res_idx)
                 .filter_map(|(e, _)| e.pos.map(|p| (p.lon(), p.lat()))),
         );
         let km = ext.map_or(0.0, |r| {
@@ -254,21 +345,136 @@ pub fn analyse(
         });
         default_resolution(km)
     });
-    let cw = aggregate(&edits, &facts, &week_of, weeks, res, &score_of, threshold);
+    let cell_weeks = aggregate(&edits, &facts, &week_of, weeks, res, &score_of, threshold);
+    let changeset_cells = changeset_cell_weeks(&edits, &facts, &week_of, res, &score_of, threshold);
+    Ok(Counted {
+        first_week,
+        cell_weeks,
+        changeset_cells,
+        changesets,
+    })
+}
 
-    // Which region each cell, and so each edit, belongs to.
+/// Runs every analysis stage on the database.
+///
+/// # Errors
+/// On database failure, unreadable land or regions files, or when there is no data.
+pub fn analyse(
+    store: &Store,
+    opts: &ReportOptions,
+    progress: &Progress,
+) -> Result<Analysis, PipelineError> {
+    let week = report_week(store, opts)?;
+    let n_hist = history_weeks(week, data_first_week(store)?, opts.baseline_weeks);
+    let first_week = week.offset(-i64::from(n_hist));
+    progress.note(&format!(
+        "report week {week}, baseline {first_week} to {}",
+        week.offset(-1)
+    ));
+    let land = opts.land.load()?;
+    let regions = load_regions(opts)?;
+    let counted = count(store, first_week, week, week, &land, opts)?;
+    let mut analysis = analyse_counted(counted, &regions, land, store.skipped()?, opts, progress);
+    analysis.roads = main_roads(store, &analysis, opts, progress)?;
+    Ok(analysis)
+}
+
+/// Runs the per-region stages on a window read from an export folder (the reverse path:
+/// cell-week counts made elsewhere, maps and report from hexvigil). The report week is
+/// `opts.week` or the export's default week; the map has no road context.
+///
+/// # Errors
+/// When the export is missing, malformed or does not cover the window, when its resolution or
+/// flag threshold differs from `opts`, or on unreadable land or regions files.
+pub fn analyse_export(
+    dir: &Path,
+    opts: &ReportOptions,
+    progress: &Progress,
+) -> Result<Analysis, PipelineError> {
+    let manifest = crate::export::Manifest::load(dir)?;
+    let week = opts.week.unwrap_or(manifest.default_week);
+    let n_hist = history_weeks(week, Some(manifest.data_first_week), opts.baseline_weeks);
+    let first_week = week.offset(-i64::from(n_hist));
+    progress.note(&format!(
+        "report week {week}, baseline {first_week} to {}, from the export in {}",
+        week.offset(-1),
+        dir.display()
+    ));
+    let land = opts.land.load()?;
+    let regions = load_regions(opts)?;
+    let counted = crate::export::read(dir, &manifest, first_week, week, opts)?;
+    Ok(analyse_counted(
+        counted,
+        &regions,
+        land,
+        manifest
+            .skipped
+            .iter()
+            .map(|s| (s.reason.clone(), s.count))
+            .collect(),
+        opts,
+        progress,
+    ))
+}
+
+/// Main roads around the regions' maps (lon/lat polylines), when the style draws them.
+fn main_roads(
+    store: &Store,
+    analysis: &Analysis,
+    opts: &ReportOptions,
+    progress: &Progress,
+) -> Result<Vec<Vec<(f64, f64)>>, PipelineError> {
+    let area = bbox_of(analysis.regions.iter().flat_map(|r| {
+        let (a, b) = (r.extent.min(), r.extent.max());
+        [(a.x, a.y), (b.x, b.y)]
+    }));
+    Ok(match area {
+        Some(area) if opts.style.roads.show => {
+            let found = crate::roads::main_roads(store, area)?;
+            if found.truncated {
+                progress.note(&format!(
+                    "main roads: only the first {} nodes were read; the rest are not drawn",
+                    crate::roads::MAX_ROAD_NODES
+                ));
+            }
+            found.lines
+        }
+        _ => Vec::new(),
+    })
+}
+
+/// The per-region stages over a counted window: each region's outlier tests, counts against
+/// its usual week, changesets, incidents and trend, for the window's last week. `skipped` is
+/// listed on the pages; the result has no road context.
+#[allow(
+    clippy::too_many_lines,
+    reason = "one linear pipeline, easier to read whole"
+)]
+#[must_use]
+pub fn analyse_counted(
+    counted: Counted,
+    regions: &[Region],
+    land: Land,
+    skipped: Vec<(String, u64)>,
+    opts: &ReportOptions,
+    progress: &Progress,
+) -> Analysis {
+    let week = counted.report_week();
+    let first_week = counted.first_week;
+    let cw = counted.cell_weeks;
+    let weeks = cw.weeks;
+    let report_idx = weeks - 1;
+    let n_hist = u32::try_from(report_idx).unwrap_or(u32::MAX);
+    let res = cw.resolution;
+    let threshold = opts.flag_threshold;
+    let changesets = &counted.changesets;
+    let contributions = crate::cells::contributions(&counted.changeset_cells, report_idx);
+
+    // Which region each cell belongs to.
     let region_of_cell: HashMap<CellIndex, usize> = cw
         .cells
         .keys()
-        .filter_map(|&c| crate::regions::region_of(&regions, c).map(|r| (c, r)))
-        .collect();
-    let edit_region: Vec<Option<usize>> = edits
-        .iter()
-        .map(|e| {
-            e.pos
-                .and_then(|p| crate::cells::cell_of(p, res))
-                .and_then(|c| region_of_cell.get(&c).copied())
-        })
+        .filter_map(|&c| crate::regions::region_of(regions, c).map(|r| (c, r)))
         .collect();
 
     let slugs =
@@ -304,48 +510,43 @@ pub fn analyse(
         let mut week_sets: Vec<(HashSet<i64>, HashSet<i64>)> = vec![Default::default(); weeks];
         let mut mappers = BTreeSet::new();
         let mut cs_rows: BTreeMap<i64, (u64, u64, u64)> = BTreeMap::new();
-        for (i, e) in edits.iter().enumerate() {
-            let Some(w) = week_of[i] else { continue };
-            let in_region =
-                edit_region[i] == Some(ri) || (e.pos.is_none() && ri == 0 && w == report_idx);
+        for r in &counted.changeset_cells {
+            let w = r.week;
+            // Edits that could not be placed count in the first region, in the report week.
+            let in_region = match r.cell {
+                Some(c) => region_of_cell.get(&c) == Some(&ri),
+                None => ri == 0 && w == report_idx,
+            };
             if !in_region {
                 continue;
             }
-            trend[w].edits += 1;
-            trend[w].deletes += u64::from(e.op == Op::Delete);
-            trend[w].newcomer_edits += u64::from(facts[i].newcomer);
-            week_sets[w].0.insert(e.changeset);
-            if facts[i].newcomer {
-                week_sets[w].1.insert(e.uid);
+            trend[w].edits += r.edits();
+            trend[w].deletes += r.deletes;
+            trend[w].newcomer_edits += r.newcomer_edits;
+            week_sets[w].0.insert(r.changeset);
+            if r.newcomer_edits > 0 {
+                week_sets[w].1.insert(r.uid);
             }
             if w == report_idx {
-                count_placement(&mut placement, e.placed_by);
-                counts.edits += 1;
-                let row = cs_rows.entry(e.changeset).or_default();
-                match e.op {
-                    Op::Create => {
-                        counts.creates += 1;
-                        row.0 += 1;
-                    }
-                    Op::Modify => {
-                        counts.modifies += 1;
-                        row.1 += 1;
-                    }
-                    Op::Delete => {
-                        counts.deletes += 1;
-                        row.2 += 1;
-                    }
-                }
-                mappers.insert(e.uid);
+                placement += r.placement.clone();
+                counts.edits += r.edits();
+                counts.creates += r.creates;
+                counts.modifies += r.modifies;
+                counts.deletes += r.deletes;
+                let row = cs_rows.entry(r.changeset).or_default();
+                row.0 += r.creates;
+                row.1 += r.modifies;
+                row.2 += r.deletes;
+                mappers.insert(r.uid);
             }
         }
         counts.changesets = cs_rows.len() as u64;
         counts.mappers = mappers.len() as u64;
         counts.newcomers = week_sets[report_idx].1.len() as u64;
-        for (t, (changesets, _)) in trend.iter_mut().zip(&week_sets) {
-            t.flagged_changesets = changesets
+        for (t, (ids, _)) in trend.iter_mut().zip(&week_sets) {
+            t.flagged_changesets = ids
                 .iter()
-                .filter(|id| scored.get(id).is_some_and(|s| s.0.score >= threshold))
+                .filter(|id| changesets.get(id).is_some_and(|s| s.score >= threshold))
                 .count() as u64;
         }
         #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
@@ -380,21 +581,20 @@ pub fn analyse(
         let mut rows: Vec<ChangesetRow> = cs_rows
             .iter()
             .filter_map(|(&id, &(c, m, d))| {
-                let (s, fi) = scored.get(&id)?;
-                let f = &features[*fi];
+                let s = changesets.get(&id)?;
                 Some(ChangesetRow {
                     id,
-                    user: f.user.clone(),
-                    uid: f.uid,
-                    created_at: f.created_at,
-                    account_age_days: (f.account_age_days * 10.0).round() / 10.0,
+                    user: s.user.clone(),
+                    uid: s.uid,
+                    created_at: s.created_at,
+                    account_age_days: (s.account_age_days * 10.0).round() / 10.0,
                     creates: c,
                     modifies: m,
                     deletes: d,
-                    comment: f.comment.clone(),
-                    editor: f.editor.clone(),
+                    comment: s.comment.clone(),
+                    editor: s.editor.clone(),
                     score: s.score,
-                    reasons: s.reasons.iter().map(|r| r.1.clone()).collect(),
+                    reasons: s.reasons.clone(),
                     flagged: s.score >= threshold,
                 })
             })
@@ -425,8 +625,7 @@ pub fn analyse(
         let mut outliers = Vec::new();
         let mut rings = Vec::new();
         for t in &outs {
-            let mut contrib: Vec<(i64, u64)> = cw
-                .contributions
+            let mut contrib: Vec<(i64, u64)> = contributions
                 .get(&(t.cell, t.kind))
                 .map(|m| m.iter().map(|(&k, &v)| (k, v)).collect())
                 .unwrap_or_default();
@@ -502,7 +701,7 @@ pub fn analyse(
                 changesets: rows,
                 trend,
                 outlier_rings: rings,
-                skipped: store.skipped()?,
+                skipped: skipped.clone(),
                 images: Vec::new(),
             },
             cells,
@@ -511,22 +710,6 @@ pub fn analyse(
         bar.inc(1);
     }
     bar.finish_and_clear();
-    let roads = match bbox_of(out_regions.iter().flat_map(|r| {
-        let (a, b) = (r.extent.min(), r.extent.max());
-        [(a.x, a.y), (b.x, b.y)]
-    })) {
-        Some(area) if opts.style.roads.show => {
-            let found = crate::roads::main_roads(store, area)?;
-            if found.truncated {
-                progress.note(&format!(
-                    "main roads: only the first {} nodes were read; the rest are not drawn",
-                    crate::roads::MAX_ROAD_NODES
-                ));
-            }
-            found.lines
-        }
-        _ => Vec::new(),
-    };
     let summary = Summary {
         schema: SCHEMA_VERSION,
         generator: format!("hexvigil {}", env!("CARGO_PKG_VERSION")),
@@ -538,13 +721,13 @@ pub fn analyse(
             .map(|r| r.report.summary.clone())
             .collect(),
     };
-    Ok(Analysis {
+    Analysis {
         summary,
         regions: out_regions,
         cell_weeks: cw,
         land,
-        roads,
-    })
+        roads: Vec::new(),
+    }
 }
 
 /// Draws the images and writes the report folder.

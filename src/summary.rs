@@ -83,6 +83,15 @@ pub struct Placement {
     pub unplaced: u64,
 }
 
+impl std::ops::AddAssign for Placement {
+    fn add_assign(&mut self, o: Self) {
+        self.own_coordinates += o.own_coordinates;
+        self.node_index += o.node_index;
+        self.changeset_bbox += o.changeset_bbox;
+        self.unplaced += o.unplaced;
+    }
+}
+
 /// One outlier cell.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Outlier {
