@@ -170,7 +170,11 @@ fn skipped_elements_are_listed_in_the_report() {
         odd.as_os_str(),
         good.as_os_str(),
     ]);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let report = work.path().join("report");
     let out = hexvigil(&[
         "report".as_ref(),
@@ -185,7 +189,11 @@ fn skipped_elements_are_listed_in_the_report() {
         "--generated-at".as_ref(),
         "fixed".as_ref(),
     ]);
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let mut pages = Vec::new();
     let mut stack = vec![report];
     while let Some(d) = stack.pop() {
@@ -198,7 +206,8 @@ fn skipped_elements_are_listed_in_the_report() {
             }
         }
     }
-    let row = "<tr><th scope=\"row\">node without valid coordinates</th><td class=\"num\">1</td></tr>";
+    let row =
+        "<tr><th scope=\"row\">node without valid coordinates</th><td class=\"num\">1</td></tr>";
     assert!(
         pages.iter().any(|p| p.contains(row)),
         "no report page lists the skipped node"

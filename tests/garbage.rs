@@ -2,8 +2,8 @@
 //! thousands of deterministic mutations of valid fixtures (byte flips, truncations, splices,
 //! inserted XML and number tokens) and must return either a result or a typed error with a
 //! position inside the input, never panic. This is the stable-toolchain companion of the
-//! `cargo fuzz` targets under `fuzz/` (see DEVELOPERS.md), and every input those found is
-//! replayed here by name.
+//! `cargo fuzz` targets under `fuzz/` (see DEVELOPERS.md); the bad-input corpus and every
+//! input the fuzzers found are replayed here.
 
 use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicU64;
@@ -140,8 +140,9 @@ fn mutate(seed: &[u8], rng: &mut Rng) -> (Vec<u8>, String) {
 /// Reads XML bytes; `Err` describes a panic or an error that breaks the contract.
 fn check_xml(data: &[u8]) -> Result<(), String> {
     let mut sink = Count::default();
-    let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| read_osm(data, &mut sink)))
-        .map_err(|_| "panicked".to_owned())?;
+    let result =
+        std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| read_osm(data, &mut sink)))
+            .map_err(|_| "panicked".to_owned())?;
     match result {
         Ok(_) => Ok(()),
         Err(ReadError::Parse(p)) if p.message.is_empty() => Err("empty error message".to_owned()),
@@ -226,28 +227,34 @@ fn pbf_reader_survives_thousands_of_mutations() {
     assert!(failures.is_empty(), "{}", failures.join("\n"));
 }
 
-/// Inputs the fuzzers found, kept in `fuzz/regressions/`, named after what they found; each
-/// must now read without a panic (XML files by the XML reader, `.pbf` files by the PBF reader).
+/// The bad-input corpus and every input the fuzzers found (kept in `fuzz/regressions/`, named
+/// after what they found) go straight to the readers: `.pbf` files to the PBF reader, the rest
+/// (compressed files as raw bytes) to the XML reader; none may panic.
 #[test]
-fn fuzz_regressions_read_without_panic() {
-    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("fuzz/regressions");
+fn bad_corpus_and_fuzz_regressions_read_without_panic() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     let tmp = tempfile::tempdir().unwrap();
     let mut failures = Vec::new();
-    for entry in std::fs::read_dir(&dir).unwrap() {
-        let path = entry.unwrap().path();
-        let name = path.file_name().unwrap().to_string_lossy().into_owned();
-        if name == "README.md" {
-            continue;
-        }
-        let data = std::fs::read(&path).unwrap();
-        let r = if name.ends_with(".pbf") {
-            check_pbf(&data, &tmp.path().join("r.osm.pbf"))
-        } else {
-            check_xml(&data)
-        };
-        if let Err(e) = r {
-            failures.push(format!("{name}: {e}"));
+    let mut checked = 0;
+    for dir in ["fixtures/bad", "fuzz/regressions"] {
+        for entry in std::fs::read_dir(root.join(dir)).unwrap() {
+            let path = entry.unwrap().path();
+            let name = path.file_name().unwrap().to_string_lossy().into_owned();
+            if name.ends_with(".md") || name.ends_with(".tsv") || name.ends_with(".geojson") {
+                continue;
+            }
+            let data = std::fs::read(&path).unwrap();
+            let r = if name.ends_with(".pbf") {
+                check_pbf(&data, &tmp.path().join("r.osm.pbf"))
+            } else {
+                check_xml(&data)
+            };
+            checked += 1;
+            if let Err(e) = r {
+                failures.push(format!("{dir}/{name}: {e}"));
+            }
         }
     }
+    assert!(checked >= 40, "only {checked} files replayed");
     assert!(failures.is_empty(), "{}", failures.join("\n"));
 }

@@ -508,7 +508,11 @@ fn demo_input() -> &'static Path {
             std::fs::remove_dir_all(&dir).unwrap();
         }
         let out = bin().arg("demo").arg("--out").arg(&dir).output().unwrap();
-        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
         dir
     })
 }
@@ -546,7 +550,7 @@ fn summary_json(db: &Path, out: &Path) -> String {
     std::fs::read_to_string(out.join("summary.json")).unwrap()
 }
 
-/// Kills (SIGKILL) ingests of the demo's input at 22 seeded random moments; each time the
+/// Kills (SIGKILL) 20 ingests of the demo's input at seeded random moments; each time the
 /// database and its index must open and agree (either nothing or everything of the ingest),
 /// and a rerun must end with the same database, index and `summary.json` as an uninterrupted
 /// run.
@@ -557,7 +561,9 @@ fn killed_ingests_rerun_to_the_same_summary() {
     let clean = dir.path().join("clean.db");
     let started = std::time::Instant::now();
     assert!(ingest_bin(&clean, &inputs).status().unwrap().success());
-    let span_ms = u64::try_from(started.elapsed().as_millis()).unwrap().max(50);
+    let span_ms = u64::try_from(started.elapsed().as_millis())
+        .unwrap()
+        .max(50);
     let expected = dump(&clean);
     let expected_summary = summary_json(&clean, &dir.path().join("clean-report"));
     assert!(expected_summary.contains("\"outliers\""));
@@ -570,27 +576,45 @@ fn killed_ingests_rerun_to_the_same_summary() {
         z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
         z ^ (z >> 31)
     };
-    let mut interrupted = 0;
-    for i in 0..22 {
-        // Anywhere in the first three quarters of the clean run: reading, writing, the index
-        // switch, the commit (a killed run is rarely faster than the clean one).
-        let delay_ms = next() % (span_ms * 3 / 4);
+    // Until 20 ingests were killed mid-way (at most 40 tries): a kill after the run ended
+    // does not count. The window shrinks to the quickest full run seen, since the machine's
+    // load changes how long an ingest takes.
+    let (mut interrupted, mut i) = (0, 0);
+    let mut span_ms = span_ms;
+    while interrupted < 20 {
+        assert!(
+            i < 40,
+            "only {interrupted} of {i} ingests were killed mid-way"
+        );
+        i += 1;
+        // Anywhere in the first nine tenths of a run: reading, writing, the index switch, the
+        // commit.
+        let delay_ms = next() % (span_ms * 9 / 10).max(1);
         let db = dir.path().join(format!("k{i}.db"));
         let mut child = ingest_bin(&db, &inputs).spawn().unwrap();
         std::thread::sleep(std::time::Duration::from_millis(delay_ms));
-        if child.try_wait().unwrap().is_none() {
+        let mid_way = child.try_wait().unwrap().is_none();
+        if mid_way {
             interrupted += 1;
         }
         child.kill().unwrap_or(());
         child.wait().unwrap();
+        let mut rolled_back = true;
         if db.exists() {
             let state = dump(&db);
+            rolled_back = state.iter().all(|l| !l.starts_with("node "));
             assert!(
-                state.iter().all(|l| !l.starts_with("node ")) || state == expected,
+                rolled_back || state == expected,
                 "kill after {delay_ms} ms left a partial ingest"
             );
         }
+        let rerun_started = std::time::Instant::now();
         let rerun = ingest_bin(&db, &inputs).output().unwrap();
+        if mid_way && rolled_back {
+            // The rerun did all the work: a full run's time on the machine as it is now.
+            let ms = u64::try_from(rerun_started.elapsed().as_millis()).unwrap();
+            span_ms = span_ms.min(ms.max(50));
+        }
         assert!(
             rerun.status.success(),
             "rerun after a kill at {delay_ms} ms: {}",
@@ -609,10 +633,6 @@ fn killed_ingests_rerun_to_the_same_summary() {
         );
         std::fs::remove_dir_all(dir.path().join(format!("k{i}-report"))).unwrap();
     }
-    assert!(
-        interrupted >= 20,
-        "only {interrupted} of 22 ingests were killed mid-way (the rest had finished)"
-    );
 }
 
 /// Two ingests against one database at once: the second finds the write lock taken, waits
@@ -638,7 +658,10 @@ fn concurrent_ingest_is_refused_while_the_first_completes() {
     // Wait until the first ingest holds the write lock: a write transaction of our own fails.
     let deadline = std::time::Instant::now() + std::time::Duration::from_secs(60);
     loop {
-        assert!(std::time::Instant::now() < deadline, "the first ingest never took the lock");
+        assert!(
+            std::time::Instant::now() < deadline,
+            "the first ingest never took the lock"
+        );
         if db.exists() {
             let c = rusqlite::Connection::open(&db).unwrap();
             c.busy_timeout(std::time::Duration::ZERO).unwrap();

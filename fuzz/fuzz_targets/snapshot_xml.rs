@@ -21,6 +21,10 @@ impl OsmSink for Discard {
 fuzz_target!(|data: &[u8]| {
     if let Err(ReadError::Parse(p)) = read_osm(data, &mut Discard) {
         assert!(!p.message.is_empty(), "an error without words");
-        assert!(p.offset <= data.len() as u64, "offset {} beyond the input", p.offset);
+        assert!(
+            p.offset <= data.len() as u64,
+            "offset {} beyond the input",
+            p.offset
+        );
     }
 });
