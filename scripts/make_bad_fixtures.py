@@ -78,6 +78,30 @@ put("truncated-changesets.osm.gz", gzip.compress((HEAD + '<osm version="0.6">' +
 put("snapshot-node-without-coordinates.osm", HEAD + '<osm version="0.6">\n<node id="17" version="1"/>\n' + node(18) + "</osm>\n", 0, "node without valid coordinates", "odd but valid: a node without coordinates is skipped and counted")
 put("invalid-xml-character.osc", HEAD + '<osmChange><create><node id="19" lat="1" lon="1"><tag k="name" v="a\x01b"/></node></create></osmChange>\n', 2, "", "a control character XML does not allow")
 put("utf16.osc", GOOD.replace('encoding="UTF-8"', 'encoding="UTF-16"').encode("utf-16"), 2, "", "the document in UTF-16 (OSM files are UTF-8)")
+put("long-user-name.osc", osc("<create>\n" + node(20).replace('user="kelmor"', f'user="{"u" * 100000}"') + "</create>\n"), 2, "user is 100000 bytes long", "a 100 000-byte user name")
+put("long-tag-key.osc", osc("<create>\n" + node(21, tags=f'<tag k="{"k" * 3000}" v="x"/>') + "</create>\n"), 2, "tag key is 3000 bytes long", "a 3000-byte tag key")
+put("id-beyond-64-bits.osc", osc("<create>\n" + node("99999999999999999999999") + "</create>\n"), 2, "is not an integer", "an id too large for 64 bits")
+put("unknown-block.osc", osc("<upsert>\n" + node(22) + "</upsert>\n"), 2, "outside a <create>", "a node in a block osmChange does not have")
+put("way-in-snapshot-changesets.osm", HEAD + '<osm version="0.6"><changeset id="2" created_at="2026-11-16T10:00:00Z"/><way id="3" version="1"><nd ref="1"/></way></osm>\n', 0, "", "a changeset dump with a way among the changesets: the way is read as snapshot data")
+put("duplicate-changesets.osm", HEAD + '<osm version="0.6">\n' + '<changeset id="900000001" created_at="2026-11-16T10:00:00Z" uid="9000001" user="kelmor"><tag k="comment" v="x"/></changeset>\n' * 2 + "</osm>\n", 0, "", "the same changeset twice in a dump: stored once")
+put("deep-nesting.osc", osc("<create>\n" + "<x>" * 100000 + "</x>" * 100000 + "\n</create>\n"), 0, "", "100 000 nested unknown elements inside a block: ignored, memory stays small")
+bz_bomb = bz2.compress(b"<osm>" + b" " * (300 << 20), 9)
+put("bzip2-bomb.osm.bz2", bz_bomb, 2, "decompressed size exceeds the limit", "300 MiB of spaces in a 300-byte bzip2")
+pbf = (out.parent / "ingest" / "small.osm.pbf").read_bytes()
+put("truncated.osm.pbf", pbf[: len(pbf) * 2 // 3], 2, "PBF blob 2 (following the blob at byte 76)", "a PBF snapshot cut in its third blob")
+put("pbf-huge-blob-header.osm.pbf", (0x7FFFFFFF).to_bytes(4, "big") + pbf[4:], 2, "blob header is too big: 2147483647 bytes", "a PBF whose first blob header claims 2 GiB")
+head_len = int.from_bytes(pbf[:4], "big")
+header = pbf[4 : 4 + head_len]
+cut = header.index(b"\x18")  # BlobHeader field 3, datasize (varint)
+size = 2_000_000_000
+varint = bytearray()
+while True:
+    varint.append((size & 0x7F) | (0x80 if size > 0x7F else 0))
+    size >>= 7
+    if not size:
+        break
+header = header[:cut] + b"\x18" + bytes(varint)
+put("pbf-huge-blob-size.osm.pbf", len(header).to_bytes(4, "big") + header + pbf[4 + head_len :], 2, "PBF blob 0", "a PBF whose first blob claims 2 GB of data")
 put("regions-invalid-polygon.geojson", '{"type":"FeatureCollection","features":[{"type":"Feature","properties":{"name":"Broken"},"geometry":{"type":"Polygon","coordinates":[[[0,0],[1,1]]]}}]}', 2, "at least 4 are needed", "a regions file whose polygon has two positions")
 put("regions-not-geojson.geojson", "this is not json", 2, "invalid GeoJSON", "a regions file that is not GeoJSON")
 put("land-no-polygons.geojson", '{"type":"FeatureCollection","features":[{"type":"Feature","properties":{},"geometry":{"type":"Point","coordinates":[0,0]}}]}', 2, "no Polygon", "a land layer with only a point")

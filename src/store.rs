@@ -130,16 +130,32 @@ CREATE TABLE IF NOT EXISTS elements(
 CREATE TABLE IF NOT EXISTS skipped(reason TEXT PRIMARY KEY, count INTEGER NOT NULL);
 ";
 
+/// [`StoreError::Busy`] when another connection holds the lock, else the SQLite error.
+fn busy_or_sqlite(path: &Path, source: rusqlite::Error) -> StoreError {
+    if let rusqlite::Error::SqliteFailure(e, _) = &source {
+        if matches!(
+            e.code,
+            rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked
+        ) {
+            return StoreError::Busy {
+                path: path.to_owned(),
+            };
+        }
+    }
+    StoreError::Sqlite {
+        path: path.to_owned(),
+        source,
+    }
+}
+
 impl Store {
     /// Opens (creating if needed) the database at `path` and checks its schema version.
     ///
     /// # Errors
     /// When SQLite cannot open or create the file, or its schema version is unknown.
     pub fn open(path: &Path) -> Result<Self, StoreError> {
-        let err = |source| StoreError::Sqlite {
-            path: path.to_owned(),
-            source,
-        };
+        // Setting the journal mode needs a lock too: a run holding the database makes it busy.
+        let err = |source| busy_or_sqlite(path, source);
         let conn = Connection::open(path).map_err(err)?;
         // WAL keeps readers working during an ingest; a short busy timeout turns a second
         // writer into a clear "busy" error instead of a long wait.
@@ -276,20 +292,7 @@ impl Store {
     /// Maps a SQLite error to a [`StoreError`] naming this database.
     #[must_use]
     pub fn map_err(&self, source: rusqlite::Error) -> StoreError {
-        if let rusqlite::Error::SqliteFailure(e, _) = &source {
-            if matches!(
-                e.code,
-                rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked
-            ) {
-                return StoreError::Busy {
-                    path: self.path.clone(),
-                };
-            }
-        }
-        StoreError::Sqlite {
-            path: self.path.clone(),
-            source,
-        }
+        busy_or_sqlite(&self.path, source)
     }
 
     /// The database file.
@@ -314,20 +317,7 @@ impl Store {
         let tx = self
             .conn
             .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)
-            .map_err(|source| match &source {
-                rusqlite::Error::SqliteFailure(e, _)
-                    if matches!(
-                        e.code,
-                        rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked
-                    ) =>
-                {
-                    StoreError::Busy { path: path.clone() }
-                }
-                _ => StoreError::Sqlite {
-                    path: path.clone(),
-                    source,
-                },
-            })?;
+            .map_err(|source| busy_or_sqlite(&path, source))?;
         Ok(IngestTx { tx, path })
     }
 

@@ -149,3 +149,67 @@ fn every_bad_file_fails_clearly_and_changes_nothing() {
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
 }
+
+/// Odd but valid elements are not only counted in the database: the report's "skipped" table
+/// shows each reason with its count.
+#[test]
+fn skipped_elements_are_listed_in_the_report() {
+    let work = tempfile::tempdir().unwrap();
+    let db = work.path().join("s.db");
+    let good = work.path().join("week.osc");
+    std::fs::write(
+        &good,
+        r#"<osmChange version="0.6"><create><node id="1" version="1" changeset="5" uid="1" user="a" timestamp="2026-11-16T10:00:00Z" lat="45.2" lon="-33.6"><tag k="name" v="x"/></node></create></osmChange>"#,
+    )
+    .unwrap();
+    let odd = corpus().join("snapshot-node-without-coordinates.osm");
+    let out = hexvigil(&[
+        "ingest".as_ref(),
+        "--db".as_ref(),
+        db.as_os_str(),
+        odd.as_os_str(),
+        good.as_os_str(),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let report = work.path().join("report");
+    let out = hexvigil(&[
+        "report".as_ref(),
+        "--db".as_ref(),
+        db.as_os_str(),
+        "--out".as_ref(),
+        report.as_os_str(),
+        "--week".as_ref(),
+        "2026-W47".as_ref(),
+        "--land".as_ref(),
+        "none".as_ref(),
+        "--generated-at".as_ref(),
+        "fixed".as_ref(),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let mut pages = Vec::new();
+    let mut stack = vec![report];
+    while let Some(d) = stack.pop() {
+        for e in std::fs::read_dir(d).unwrap() {
+            let p = e.unwrap().path();
+            if p.is_dir() {
+                stack.push(p);
+            } else if p.extension().is_some_and(|x| x == "html") {
+                pages.push(std::fs::read_to_string(p).unwrap());
+            }
+        }
+    }
+    let row =
+        "<tr><th scope=\"row\">node without valid coordinates</th><td class=\"num\">1</td></tr>";
+    assert!(
+        pages.iter().any(|p| p.contains(row)),
+        "no report page lists the skipped node"
+    );
+}

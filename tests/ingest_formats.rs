@@ -1,7 +1,7 @@
 //! Ingest of real input shapes: PBF against XML, each compression, a real extract checked
 //! against a reference reader, replication folders with a gap and a sequence range, full-history
 //! diffs, deletions without coordinates, and the database with its node-location index left
-//! unchanged by a failed or killed ingest.
+//! unchanged by a failed or killed ingest, and a second ingest refused while one runs.
 
 use std::collections::HashMap;
 use std::io::Write;
@@ -497,57 +497,190 @@ fn damaged_pbf_files_are_refused_with_their_place() {
     }
 }
 
-/// Kills ingests at many points; each time the database and its index must open and agree
-/// (either nothing or everything of the ingest), and a rerun must end exactly like an
-/// uninterrupted run.
+/// The demo's input (snapshot, changeset dump, 14 weeks of daily diffs), written once by the
+/// binary: large enough that an ingest takes a few seconds and can be killed mid-way.
+fn demo_input() -> &'static Path {
+    static DEMO: std::sync::OnceLock<PathBuf> = std::sync::OnceLock::new();
+    DEMO.get_or_init(|| {
+        // Under Cargo's scratch folder for tests, written afresh once per test run.
+        let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("ingest-formats-demo");
+        if dir.exists() {
+            std::fs::remove_dir_all(&dir).unwrap();
+        }
+        let out = bin().arg("demo").arg("--out").arg(&dir).output().unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        dir
+    })
+}
+
+fn demo_inputs() -> Vec<PathBuf> {
+    let input = demo_input().join("input");
+    vec![
+        input.join("snapshot.osm"),
+        input.join("changesets.osm"),
+        input.join("diffs"),
+    ]
+}
+
+fn ingest_bin(db: &Path, inputs: &[PathBuf]) -> Command {
+    let mut c = bin();
+    c.args(["ingest", "--db"]).arg(db).args(inputs);
+    c
+}
+
+/// The demo report's `summary.json` for a database, with a fixed "generated at".
+fn summary_json(db: &Path, out: &Path) -> String {
+    let input = demo_input().join("input");
+    let o = bin()
+        .args(["report", "--generated-at", "fixed", "--db"])
+        .arg(db)
+        .arg("--out")
+        .arg(out)
+        .arg("--land")
+        .arg(input.join("land.geojson"))
+        .arg("--regions")
+        .arg(input.join("regions.geojson"))
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    std::fs::read_to_string(out.join("summary.json")).unwrap()
+}
+
+/// Kills (SIGKILL) 20 ingests of the demo's input at seeded random moments; each time the
+/// database and its index must open and agree (either nothing or everything of the ingest),
+/// and a rerun must end with the same database, index and `summary.json` as an uninterrupted
+/// run.
 #[test]
-fn killed_ingests_leave_a_consistent_state() {
+fn killed_ingests_rerun_to_the_same_summary() {
     let dir = tempfile::tempdir().unwrap();
-    let inputs = vec![
-        fixture("real/Helsinki.osm.pbf"),
-        fixture("ingest/small.osm"),
-        fixture("ingest/changesets.osm"),
-        fixture("ingest/deleted_nodes.osc"),
-    ];
+    let inputs = demo_inputs();
     let clean = dir.path().join("clean.db");
-    let clean_summary = ingest_into(&clean, &inputs);
+    let started = std::time::Instant::now();
+    assert!(ingest_bin(&clean, &inputs).status().unwrap().success());
+    let span_ms = u64::try_from(started.elapsed().as_millis())
+        .unwrap()
+        .max(50);
     let expected = dump(&clean);
-    let mut interrupted = 0;
-    for (i, delay_ms) in [2u64, 5, 10, 20, 40, 60, 90, 130, 180, 250, 350, 500]
-        .iter()
-        .enumerate()
-    {
+    let expected_summary = summary_json(&clean, &dir.path().join("clean-report"));
+    assert!(expected_summary.contains("\"outliers\""));
+    // SplitMix64 (Steele, Lea, Flood 2014), seeded: the same kill moments on every run.
+    let mut state = 0x5eed_0008_u64;
+    let mut next = || {
+        state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = state;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    };
+    // Until 20 ingests were killed mid-way (at most 40 tries): a kill after the run ended
+    // does not count. The window shrinks to the quickest full run seen, since the machine's
+    // load changes how long an ingest takes.
+    let (mut interrupted, mut i) = (0, 0);
+    let mut span_ms = span_ms;
+    while interrupted < 20 {
+        assert!(
+            i < 40,
+            "only {interrupted} of {i} ingests were killed mid-way"
+        );
+        i += 1;
+        // Anywhere in the first nine tenths of a run: reading, writing, the index switch, the
+        // commit.
+        let delay_ms = next() % (span_ms * 9 / 10).max(1);
         let db = dir.path().join(format!("k{i}.db"));
-        let mut child = Command::new(env!("CARGO_BIN_EXE_hexvigil"))
-            .args(["--quiet", "ingest", "--db"])
-            .arg(&db)
-            .args(&inputs)
-            .spawn()
-            .unwrap();
-        std::thread::sleep(std::time::Duration::from_millis(*delay_ms));
-        if child.try_wait().unwrap().is_none() {
+        let mut child = ingest_bin(&db, &inputs).spawn().unwrap();
+        std::thread::sleep(std::time::Duration::from_millis(delay_ms));
+        let mid_way = child.try_wait().unwrap().is_none();
+        if mid_way {
             interrupted += 1;
         }
-        let _ = child.kill();
+        child.kill().unwrap_or(());
         child.wait().unwrap();
+        let mut rolled_back = true;
         if db.exists() {
             let state = dump(&db);
+            rolled_back = state.iter().all(|l| !l.starts_with("node "));
             assert!(
-                state.iter().all(|l| !l.starts_with("node ")) || state == expected,
+                rolled_back || state == expected,
                 "kill after {delay_ms} ms left a partial ingest"
             );
         }
-        let s = ingest_into(&db, &inputs);
-        assert!(s.files == 0 || s.elements == clean_summary.elements);
+        let rerun_started = std::time::Instant::now();
+        let rerun = ingest_bin(&db, &inputs).output().unwrap();
+        if mid_way && rolled_back {
+            // The rerun did all the work: a full run's time on the machine as it is now.
+            let ms = u64::try_from(rerun_started.elapsed().as_millis()).unwrap();
+            span_ms = span_ms.min(ms.max(50));
+        }
+        assert!(
+            rerun.status.success(),
+            "rerun after a kill at {delay_ms} ms: {}",
+            String::from_utf8_lossy(&rerun.stderr)
+        );
         assert_eq!(dump(&db), expected, "rerun after a kill at {delay_ms} ms");
         let left = index_files(dir.path())
             .into_iter()
             .filter(|(n, _)| n.starts_with(&format!("k{i}.db.")))
             .count();
         assert_eq!(left, 1, "leftover index files after the rerun");
+        let summary = summary_json(&db, &dir.path().join(format!("k{i}-report")));
+        assert!(
+            summary == expected_summary,
+            "summary.json differs after a kill at {delay_ms} ms and a rerun"
+        );
+        std::fs::remove_dir_all(dir.path().join(format!("k{i}-report"))).unwrap();
     }
+}
+
+/// Two ingests against one database at once: the second finds the write lock taken, waits
+/// SQLite's busy timeout (5 s, rusqlite's default) and is refused with a one-line "busy" error
+/// and exit 3; the first completes, and the database ends as after one ingest. The first is
+/// paused (SIGSTOP) while it holds the lock, so its lead does not depend on timing.
+#[test]
+fn concurrent_ingest_is_refused_while_the_first_completes() {
+    let dir = tempfile::tempdir().unwrap();
+    let inputs = demo_inputs();
+    let clean = dir.path().join("clean.db");
+    assert!(ingest_bin(&clean, &inputs).status().unwrap().success());
+    let db = dir.path().join("shared.db");
+    let mut first = ingest_bin(&db, &inputs).spawn().unwrap();
+    let signal = |sig: &str| {
+        let ok = Command::new("kill")
+            .args([sig, &first.id().to_string()])
+            .status()
+            .unwrap()
+            .success();
+        assert!(ok, "kill {sig}");
+    };
+    // Wait until the first ingest holds the write lock: a write transaction of our own fails.
+    let deadline = std::time::Instant::now() + std::time::Duration::from_secs(60);
+    loop {
+        assert!(
+            std::time::Instant::now() < deadline,
+            "the first ingest never took the lock"
+        );
+        if db.exists() {
+            let c = rusqlite::Connection::open(&db).unwrap();
+            c.busy_timeout(std::time::Duration::ZERO).unwrap();
+            if c.execute_batch("BEGIN IMMEDIATE; ROLLBACK;").is_err() {
+                break;
+            }
+        }
+        std::thread::sleep(std::time::Duration::from_millis(2));
+    }
+    signal("-STOP");
+    let second = ingest_bin(&db, &inputs).output().unwrap();
+    signal("-CONT");
+    let err = String::from_utf8_lossy(&second.stderr);
+    assert_eq!(second.status.code(), Some(3), "{err}");
+    assert_eq!(err.lines().count(), 1, "{err}");
     assert!(
-        interrupted >= 3,
-        "too few ingests were interrupted ({interrupted}) to test anything"
+        err.contains("shared.db") && err.contains("busy: another hexvigil run is using it"),
+        "{err}"
     );
+    assert!(first.wait().unwrap().success(), "the first ingest failed");
+    assert_eq!(dump(&db), dump(&clean));
 }
