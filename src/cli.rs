@@ -169,6 +169,12 @@ pub enum Command {
         /// Weeks of data (the last one has the injected incidents).
         #[arg(long, default_value_t = 14)]
         weeks: u32,
+        /// Multiplies the volume of ordinary mapping (0 to 100), e.g. for benchmark inputs.
+        #[arg(long, default_value_t = 1.0)]
+        intensity: f64,
+        /// Only write input/ (no state.db, no report).
+        #[arg(long)]
+        inputs_only: bool,
         /// Map style: a built-in name (default, dark, print) or a TOML file.
         #[arg(long, default_value = "default")]
         style: String,
@@ -1013,6 +1019,8 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
             out,
             seed,
             weeks,
+            intensity,
+            inputs_only,
             style,
         } => {
             let style = load_style(&style, None)?;
@@ -1022,7 +1030,7 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 &DemoOptions {
                     seed,
                     weeks,
-                    ..DemoOptions::default()
+                    intensity,
                 },
             )
             .map_err(|e| Failure {
@@ -1030,6 +1038,9 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 code: exit::OUTPUT,
             })?;
             progress.note(&format!("demo input written to {}", input.display()));
+            if inputs_only {
+                return Ok(());
+            }
             let db = out.join("state.db");
             let mut store = Store::open(&db)?;
             let mut inputs = vec![files.snapshot.clone(), files.changesets.clone()];

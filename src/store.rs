@@ -518,13 +518,16 @@ impl IngestTx<'_> {
         .map_err(|e| self.err(e))
     }
 
-    /// Writes the latest state of an element (the caller checked the version is newer).
+    /// Writes the latest state of an element. With `replace`, the caller checked the version is
+    /// newer than the stored one; without it (a version 1 written without looking up the
+    /// stored state), an existing row, which can only be as new or newer, is kept.
     ///
     /// # Errors
     /// On SQLite failure.
     #[allow(clippy::too_many_arguments, reason = "one column each")]
     pub fn put_element(
         &self,
+        replace: bool,
         t: ElementType,
         id: i64,
         version: i64,
@@ -536,10 +539,13 @@ impl IngestTx<'_> {
     ) -> Result<(), StoreError> {
         let mut st = self
             .tx
-            .prepare_cached(
+            .prepare_cached(if replace {
                 "INSERT OR REPLACE INTO elements(etype, eid, version, ts, visible, lat_e7, lon_e7, tags, refs)
-                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
-            )
+                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)"
+            } else {
+                "INSERT OR IGNORE INTO elements(etype, eid, version, ts, visible, lat_e7, lon_e7, tags, refs)
+                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)"
+            })
             .map_err(|e| self.err(e))?;
         st.execute(params![
             t.code(),

@@ -888,10 +888,19 @@ impl Writer<'_, '_> {
             // highest version, so no lookup is needed; this is most of a snapshot.
             return self.stage(el.id, pos, el.version);
         }
-        let stored = self.tx.element(t, el.id)?;
+        // A created version 1 replaces nothing: the lookups of earlier state are skipped (most
+        // of a diff). Should the element be stored already (an overlapping file), that state
+        // is as new or newer: the edit row is then ignored, the element row kept, and the index
+        // keeps the highest version.
+        let fresh = op == Some(Op::Create) && el.version == 1 && !deleted;
+        let stored = if fresh {
+            None
+        } else {
+            self.tx.element(t, el.id)?
+        };
         // In a diff, the state a node version replaces may be known only to the index (an
         // untagged node); it is the newer of the two.
-        let indexed = if is_node && op.is_some() {
+        let indexed = if is_node && op.is_some() && !fresh {
             self.nodes.get(el.id)?
         } else {
             None
@@ -950,6 +959,7 @@ impl Writer<'_, '_> {
         }
         if deleted {
             self.tx.put_element(
+                true,
                 t,
                 el.id,
                 el.version,
@@ -961,6 +971,7 @@ impl Writer<'_, '_> {
             )
         } else {
             self.tx.put_element(
+                !fresh,
                 t,
                 el.id,
                 el.version,
