@@ -479,11 +479,14 @@ pub fn ingest_extended(
         let input = input?;
         summary.bytes += input.size;
         if !seen.insert(input.hash.clone()) || tx.has_input(&input.hash)? {
+            // Named one by one only when few; the summary line counts them all.
             summary.already_ingested += 1;
-            progress.note(&format!(
-                "{}: already ingested, skipped",
-                input.path.display()
-            ));
+            if summary.already_ingested <= 3 {
+                progress.note(&format!(
+                    "{}: already ingested, skipped",
+                    input.path.display()
+                ));
+            }
             continue;
         }
         todo.push(input);
