@@ -2,7 +2,7 @@
 //! buckets edits into H3 cells and ISO weeks, compares each cell's week with its own history
 //! and its neighbours, and writes heat images and an HTML report ranking the outliers.
 //!
-//! One module per pipeline stage; see ARCHITECTURE.md for the data flow.
+//! One module per pipeline stage; see DEVELOPERS.md for the data flow.
 #![deny(clippy::unwrap_used, clippy::expect_used)]
 
 pub mod baseline;
