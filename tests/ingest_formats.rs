@@ -635,10 +635,10 @@ fn killed_ingests_rerun_to_the_same_summary() {
     }
 }
 
-/// Two ingests against one database at once: the second finds the write lock taken, waits
-/// SQLite's busy timeout (5 s, rusqlite's default) and is refused with a one-line "busy" error
-/// and exit 3; the first completes, and the database ends as after one ingest. The first is
-/// paused (SIGSTOP) while it holds the lock, so its lead does not depend on timing.
+/// Two runs against one database at once: while another run holds the write lock (here the
+/// test itself, inside a write transaction, so nothing depends on timing), an ingest waits
+/// SQLite's busy timeout and is refused with a one-line "busy" error and exit 3, leaving the
+/// database as it was; once the lock is released the same ingest completes.
 #[test]
 fn concurrent_ingest_is_refused_while_the_first_completes() {
     let dir = tempfile::tempdir().unwrap();
@@ -646,34 +646,12 @@ fn concurrent_ingest_is_refused_while_the_first_completes() {
     let clean = dir.path().join("clean.db");
     assert!(ingest_bin(&clean, &inputs).status().unwrap().success());
     let db = dir.path().join("shared.db");
-    let mut first = ingest_bin(&db, &inputs).spawn().unwrap();
-    let signal = |sig: &str| {
-        let ok = Command::new("kill")
-            .args([sig, &first.id().to_string()])
-            .status()
-            .unwrap()
-            .success();
-        assert!(ok, "kill {sig}");
-    };
-    // Wait until the first ingest holds the write lock: a write transaction of our own fails.
-    let deadline = std::time::Instant::now() + std::time::Duration::from_secs(60);
-    loop {
-        assert!(
-            std::time::Instant::now() < deadline,
-            "the first ingest never took the lock"
-        );
-        if db.exists() {
-            let c = rusqlite::Connection::open(&db).unwrap();
-            c.busy_timeout(std::time::Duration::ZERO).unwrap();
-            if c.execute_batch("BEGIN IMMEDIATE; ROLLBACK;").is_err() {
-                break;
-            }
-        }
-        std::thread::sleep(std::time::Duration::from_millis(2));
-    }
-    signal("-STOP");
+    // A database that exists (one small ingest), then held by "another run".
+    assert!(ingest_bin(&db, &inputs[..1]).status().unwrap().success());
+    let before = dump(&db);
+    let holder = rusqlite::Connection::open(&db).unwrap();
+    holder.execute_batch("BEGIN IMMEDIATE;").unwrap();
     let second = ingest_bin(&db, &inputs).output().unwrap();
-    signal("-CONT");
     let err = String::from_utf8_lossy(&second.stderr);
     assert_eq!(second.status.code(), Some(3), "{err}");
     assert_eq!(err.lines().count(), 1, "{err}");
@@ -681,6 +659,9 @@ fn concurrent_ingest_is_refused_while_the_first_completes() {
         err.contains("shared.db") && err.contains("busy: another hexvigil run is using it"),
         "{err}"
     );
-    assert!(first.wait().unwrap().success(), "the first ingest failed");
+    holder.execute_batch("ROLLBACK;").unwrap();
+    drop(holder);
+    assert_eq!(dump(&db), before, "the refused ingest changed the database");
+    assert!(ingest_bin(&db, &inputs).status().unwrap().success());
     assert_eq!(dump(&db), dump(&clean));
 }
