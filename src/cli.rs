@@ -367,7 +367,10 @@ fn update(args: &UpdateArgs, progress: &Progress) -> Result<(), Failure> {
         ));
     }
     match (&args.report_out, report_opts) {
-        (Some(out), Some(o)) => report(&Source::Db(&args.db), out, &o, progress),
+        (Some(out), Some(o)) => {
+            let mut analysis = Source::Db(&args.db).analyse(&o, progress)?;
+            report(&mut analysis, out, &o, progress)
+        }
         _ => Ok(()),
     }
 }
@@ -669,14 +672,14 @@ impl<'a> Source<'a> {
     }
 }
 
+/// Writes the report folder of an analysis and tells what it holds.
 fn report(
-    source: &Source<'_>,
+    analysis: &mut Analysis,
     out: &Path,
     opts: &ReportOptions,
     progress: &Progress,
 ) -> Result<(), Failure> {
-    let mut analysis = source.analyse(opts, progress)?;
-    pipeline::write(&mut analysis, out, opts)?;
+    pipeline::write(analysis, out, opts)?;
     for r in &analysis.summary.regions {
         progress.note(&format!(
             "{}: {} edits, {} changesets, {} flagged, {} outlier cells",
@@ -694,15 +697,15 @@ fn report(
     Ok(())
 }
 
+/// Writes the tile pyramid of an analysis and tells what it holds.
 fn tiles(
-    source: &Source<'_>,
+    analysis: &Analysis,
     out: &Path,
     opts: &ReportOptions,
     tile_opts: &TileOptions,
     progress: &Progress,
 ) -> Result<(), Failure> {
-    let analysis = source.analyse(opts, progress)?;
-    let s = crate::tiles::write_tiles(&analysis, opts, tile_opts, out, progress)?;
+    let s = crate::tiles::write_tiles(analysis, opts, tile_opts, out, progress)?;
     let per_zoom: Vec<String> = s
         .per_zoom
         .iter()
@@ -935,7 +938,8 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
             let mut opts = settings.options()?;
             opts.scoring = scoring(settings.model.as_deref(), settings.scores.as_deref())?;
             let source = Source::from_args(db.as_deref(), cell_weeks.as_deref())?;
-            report(&source, &out, &opts, &progress)
+            let mut analysis = source.analyse(&opts, &progress)?;
+            report(&mut analysis, &out, &opts, &progress)
         }
         Command::Export {
             db,
@@ -962,7 +966,9 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 max_tiles,
             };
             let source = Source::from_args(db.as_deref(), cell_weeks.as_deref())?;
-            tiles(&source, &out, &settings.options()?, &opts, &progress)
+            let settings = settings.options()?;
+            let analysis = source.analyse(&settings, &progress)?;
+            tiles(&analysis, &out, &settings, &opts, &progress)
         }
         Command::Labels {
             db,
@@ -1057,14 +1063,16 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 ..ReportOptions::default()
             };
             let report_dir = out.join("report");
-            report(&Source::Db(&db), &report_dir, &opts, &progress)?;
+            // One analysis serves both the report and the tiles.
+            let mut analysis = Source::Db(&db).analyse(&opts, &progress)?;
+            report(&mut analysis, &report_dir, &opts, &progress)?;
             // The town scale of the demo: zoom 9 shows the whole coast, 14 single streets.
             let tile_opts = TileOptions {
                 zooms: ZoomRange { min: 9, max: 14 },
                 ..TileOptions::default()
             };
             tiles(
-                &Source::Db(&db),
+                &analysis,
                 &report_dir.join("tiles"),
                 &opts,
                 &tile_opts,
