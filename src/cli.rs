@@ -626,11 +626,11 @@ fn ingest_line(s: &IngestSummary) -> String {
     #[allow(clippy::cast_precision_loss, reason = "display only")]
     let rate = s.elements as f64 / (s.elapsed_ms.max(1) as f64 / 1000.0);
     format!(
-        "ingested {} file(s) ({} already ingested): {} elements, {} new edits, {} changesets, {} skipped elements in {:.1} s ({:.0} elements/s)",
+        "ingested {} file(s) ({} already ingested): {} elements, {} edits, {} changesets, {} skipped elements in {:.1} s ({:.0} elements/s)",
         s.files,
         s.already_ingested,
         s.elements,
-        s.new_edits,
+        s.edits,
         s.changesets,
         s.skipped_elements,
         s.elapsed_ms as f64 / 1000.0,

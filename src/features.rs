@@ -156,75 +156,25 @@ pub struct EditFacts {
     pub far_create: bool,
 }
 
-/// Grid size of [`ExistingData`], in 1e-7 degrees (0.01°, about 1.1 km north-south).
-const GRID_E7: i64 = 100_000;
-
-/// Where map data existed, and since when: for each 0.01° × 0.01° grid square, the time of the
-/// first node known there (the snapshot's nodes count as always there). A creation is "far from
-/// existing data" when the square it lies in and its eight neighbours (about 3 km across) held no
-/// node before its changeset began.
+/// Where map data existed, and since when: for each 0.01° × 0.01° grid square
+/// ([`crate::store::grid_square`]), the time of the first node known there (nodes met in the
+/// snapshot or first met in an edit count as always there; a snapshot node of version 1 from
+/// its creation). A creation is "far from existing data" when the square it lies in and its
+/// eight neighbours (about 3 km across) held no node before its changeset began.
 #[derive(Debug, Default, Clone)]
 pub struct ExistingData {
-    first: HashMap<(i64, i64), i64>,
-}
-
-fn grid_of(lat_e7: i64, lon_e7: i64) -> (i64, i64) {
-    (
-        (lat_e7 + 900_000_000).div_euclid(GRID_E7),
-        (lon_e7 + 1_800_000_000).div_euclid(GRID_E7),
-    )
+    first: HashMap<i64, i64>,
 }
 
 impl ExistingData {
-    /// Reads node positions from the database: the node-location index (nodes that were never
-    /// seen created count as existing from the start) and the creations in the diffs.
+    /// Reads the squares' first-node times, which every ingest keeps up to date.
     ///
     /// # Errors
     /// On database failure.
     pub fn load(store: &Store) -> Result<Self, StoreError> {
-        let conn = store.conn();
-        let mut first: HashMap<(i64, i64), i64> = HashMap::new();
-        let grid = format!("(lat_e7 + 900000000) / {GRID_E7}, (lon_e7 + 1800000000) / {GRID_E7}");
-        // Nodes never seen created count as existing from the start: the node-location index,
-        // less the nodes whose creation is among the diffs.
-        let mut created: std::collections::HashSet<i64> = std::collections::HashSet::new();
-        let mut st = conn
-            .prepare("SELECT eid FROM edits WHERE etype = 0 AND op = 0 AND version = 1")
-            .map_err(|e| store.map_err(e))?;
-        let rows = st
-            .query_map([], |r| r.get::<_, i64>(0))
-            .map_err(|e| store.map_err(e))?;
-        for row in rows {
-            created.insert(row.map_err(|e| store.map_err(e))?);
-        }
-        for entry in store.node_index()?.iter()? {
-            let (id, n) = entry?;
-            if !created.contains(&id) {
-                let g = grid_of(i64::from(n.coord.lat_e7()), i64::from(n.coord.lon_e7()));
-                first.insert(g, i64::MIN);
-            }
-        }
-        let mut st = conn
-            .prepare(&format!(
-                "SELECT {grid}, MIN(ts) FROM edits WHERE etype = 0 AND op = 0 AND lat_e7 IS NOT NULL
-                 GROUP BY 1, 2"
-            ))
-            .map_err(|e| store.map_err(e))?;
-        let rows = st
-            .query_map([], |r| {
-                Ok((
-                    r.get::<_, i64>(0)?,
-                    r.get::<_, i64>(1)?,
-                    r.get::<_, i64>(2)?,
-                ))
-            })
-            .map_err(|e| store.map_err(e))?;
-        for row in rows {
-            let (a, b, t) = row.map_err(|e| store.map_err(e))?;
-            let e = first.entry((a, b)).or_insert(t);
-            *e = (*e).min(t);
-        }
-        Ok(Self { first })
+        Ok(Self {
+            first: store.grid_first()?,
+        })
     }
 
     /// Whether no node existed before `t` within about 1.5 km of `p` (the grid square and its
@@ -234,9 +184,12 @@ impl ExistingData {
         if self.first.is_empty() {
             return false;
         }
-        let (a, b) = grid_of(i64::from(p.lat_e7()), i64::from(p.lon_e7()));
-        (-1..=1).all(|da| {
-            (-1..=1).all(|db| !matches!(self.first.get(&(a + da, b + db)), Some(&f) if f < t))
+        let centre = crate::store::grid_square(p.lat_e7(), p.lon_e7());
+        (-1..=1).all(|dr: i64| {
+            (-1..=1).all(|dc: i64| {
+                let sq = centre + dr * 65_536 + dc;
+                !matches!(self.first.get(&sq), Some(&f) if f < t)
+            })
         })
     }
 }
@@ -269,12 +222,6 @@ impl MapperHistory {
                 "SELECT created_at, id FROM changesets WHERE uid = ?1 ORDER BY created_at",
             )
             .map_err(|e| store.map_err(e))?;
-        let mut work_st = conn
-            .prepare_cached(
-                "SELECT MIN(ts), COUNT(*), SUM(op = 2) FROM edits WHERE uid = ?1
-                 GROUP BY changeset ORDER BY 1",
-            )
-            .map_err(|e| store.map_err(e))?;
         let mut out = Self::default();
         for uid in uids {
             let v: Vec<(i64, i64)> = st
@@ -292,24 +239,15 @@ impl MapperHistory {
             out.created
                 .insert(uid, v.into_iter().map(|(t, _)| t).collect());
             let mut cum = (0u64, 0u64);
-            let w: Vec<(i64, u64, u64)> = work_st
-                .query_map(params![uid], |r| {
-                    Ok((
-                        r.get::<_, i64>(0)?,
-                        r.get::<_, i64>(1)?,
-                        r.get::<_, i64>(2)?,
-                    ))
+            let w: Vec<(i64, u64, u64)> = store
+                .mapper_work(uid)?
+                .into_iter()
+                .map(|(t, n, d)| {
+                    cum.0 += n;
+                    cum.1 += d;
+                    (t, cum.0, cum.1)
                 })
-                .map_err(|e| store.map_err(e))?
-                .map(|row| {
-                    row.map(|(t, n, d)| {
-                        cum.0 += u64::try_from(n).unwrap_or(0);
-                        cum.1 += u64::try_from(d).unwrap_or(0);
-                        (t, cum.0, cum.1)
-                    })
-                })
-                .collect::<Result<Vec<_>, _>>()
-                .map_err(|e| store.map_err(e))?;
+                .collect();
             out.work.insert(uid, w);
         }
         Ok(out)
@@ -1035,22 +973,13 @@ impl<'a> FeatureContext<'a> {
         ids: &std::collections::BTreeSet<i64>,
         progress: &Progress,
     ) -> Result<Vec<ChangesetFeatures>, StoreError> {
-        // One pass over the edits: faster than a lookup per changeset without an index on it.
-        let mut st = self
+        let mut starts: Vec<(i64, i64)> = self
             .store
-            .conn()
-            .prepare("SELECT changeset, MIN(ts) FROM edits GROUP BY changeset")
-            .map_err(|e| self.store.map_err(e))?;
-        let rows = st
-            .query_map([], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, i64>(1)?)))
-            .map_err(|e| self.store.map_err(e))?;
-        let mut starts: Vec<(i64, i64)> = Vec::new();
-        for row in rows {
-            let (id, t) = row.map_err(|e| self.store.map_err(e))?;
-            if ids.contains(&id) {
-                starts.push((t, id));
-            }
-        }
+            .edited_changesets()?
+            .into_iter()
+            .filter(|(id, _)| ids.contains(id))
+            .map(|(id, t)| (t, id))
+            .collect();
         starts.sort_unstable();
         const WEEK: i64 = 604_800;
         const DAY: i64 = 86_400;
@@ -1145,12 +1074,12 @@ mod tests {
     #[test]
     fn far_from_data_means_no_earlier_node_within_a_grid_square() {
         let p = crate::model::Coord::from_degrees(45.2, -33.6).unwrap();
-        let g = grid_of(i64::from(p.lat_e7()), i64::from(p.lon_e7()));
+        let g = crate::store::grid_square(p.lat_e7(), p.lon_e7());
         let mut d = ExistingData::default();
         assert!(!d.is_far(p, 1000), "no data loaded: never far");
-        d.first.insert((g.0 + 5, g.1), i64::MIN);
+        d.first.insert(g + 5 * 65_536, i64::MIN);
         assert!(d.is_far(p, 1000));
-        d.first.insert((g.0 + 1, g.1 - 1), 2000);
+        d.first.insert(g + 65_536 - 1, 2000);
         assert!(d.is_far(p, 1000), "created later than the changeset");
         assert!(!d.is_far(p, 3000));
     }

@@ -424,16 +424,11 @@ pub fn derive_labels(store: &Store, opts: &LabelOptions) -> Result<Labels, Store
         unknown_targets: index.unknown_targets,
         ..Labels::default()
     };
-    let with_edits: HashSet<i64> = {
-        let mut st = conn
-            .prepare("SELECT DISTINCT changeset FROM edits")
-            .map_err(|e| store.map_err(e))?;
-        let rows = st
-            .query_map([], |r| r.get::<_, i64>(0))
-            .map_err(|e| store.map_err(e))?;
-        rows.collect::<Result<_, _>>()
-            .map_err(|e| store.map_err(e))?
-    };
+    let with_edits: HashSet<i64> = store
+        .edited_changesets()?
+        .into_iter()
+        .map(|(id, _)| id)
+        .collect();
     let newest: Option<i64> = conn
         .query_row("SELECT MAX(created_at) FROM changesets", [], |r| r.get(0))
         .map_err(|e| store.map_err(e))?;

@@ -208,50 +208,34 @@ pub fn load_edits(
     from: i64,
     to: i64,
 ) -> Result<(Vec<Edit>, HashMap<i64, ChangesetMeta>), StoreError> {
-    let mut st = store
-        .conn()
-        .prepare(
-            "SELECT etype, eid, version, op, changeset, uid, user, ts, lat_e7, lon_e7, tags, refs,
-                    prev_version, prev_ts, prev_tags, prev_lat_e7, prev_lon_e7
-             FROM edits WHERE ts >= ?1 AND ts < ?2 ORDER BY ts, etype, eid, version",
-        )
-        .map_err(|e| store.map_err(e))?;
-    let rows = st
-        .query_map(params![from, to], |r| {
-            let pos = match (r.get::<_, Option<i64>>(8)?, r.get::<_, Option<i64>>(9)?) {
-                (Some(a), Some(b)) => Coord::from_e7(a, b),
-                _ => None,
-            };
-            let prev_pos = match (r.get::<_, Option<i64>>(15)?, r.get::<_, Option<i64>>(16)?) {
-                (Some(a), Some(b)) => Coord::from_e7(a, b),
-                _ => None,
-            };
-            Ok((
-                Edit {
-                    etype: ElementType::from_code(r.get(0)?).unwrap_or(ElementType::Node),
-                    eid: r.get(1)?,
-                    version: r.get(2)?,
-                    op: Op::from_code(r.get(3)?).unwrap_or(Op::Modify),
-                    changeset: r.get(4)?,
-                    uid: r.get(5)?,
-                    user: r.get(6)?,
-                    ts: r.get(7)?,
-                    pos,
-                    placed_by: if pos.is_some() {
-                        PlacedBy::Own
-                    } else {
-                        PlacedBy::Unplaced
-                    },
-                    tags: r.get(10)?,
-                    prev_tags: r.get(14)?,
-                    prev_version: r.get(12)?,
-                    prev_ts: r.get(13)?,
-                    prev_pos,
+    let coord = |p: Option<(i32, i32)>| p.and_then(|(a, b)| Coord::from_e7(a.into(), b.into()));
+    let rows = store.edits(from, to)?.into_iter().map(|e| {
+        let pos = coord(e.pos);
+        (
+            Edit {
+                etype: e.etype,
+                eid: e.eid,
+                version: e.version,
+                op: e.op,
+                changeset: e.changeset,
+                uid: e.uid,
+                user: e.user,
+                ts: e.ts,
+                pos,
+                placed_by: if pos.is_some() {
+                    PlacedBy::Own
+                } else {
+                    PlacedBy::Unplaced
                 },
-                r.get::<_, Option<Vec<u8>>>(11)?,
-            ))
-        })
-        .map_err(|e| store.map_err(e))?;
+                tags: e.tags,
+                prev_tags: e.prev.as_ref().map(|p| p.tags.clone()),
+                prev_version: e.prev.as_ref().map(|p| p.version),
+                prev_ts: e.prev.as_ref().and_then(|p| p.ts),
+                prev_pos: coord(e.prev.as_ref().and_then(|p| p.pos)),
+            },
+            e.refs,
+        )
+    });
     let mut edits = Vec::new();
     let mut index = Positions {
         store,
@@ -259,8 +243,7 @@ pub fn load_edits(
         cache: HashMap::new(),
     };
     let mut pending = Vec::new();
-    for row in rows {
-        let (mut e, refs) = row.map_err(|e| store.map_err(e))?;
+    for (mut e, refs) in rows {
         if e.pos.is_none() {
             let refs = match refs {
                 Some(r) => Some(r),

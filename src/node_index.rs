@@ -21,7 +21,6 @@
 //! leftovers and are removed by the next ingest, which holds the database's write lock.
 
 use std::cell::RefCell;
-use std::collections::HashMap;
 use std::fs::File;
 use std::io::{BufReader, BufWriter, Read, Seek, SeekFrom, Write};
 use std::os::unix::fs::FileExt;
@@ -544,7 +543,7 @@ pub struct NodeIndexTx {
     /// Entries staged in increasing id order (a sorted snapshot): kept without hashing.
     tail: Vec<(i64, NodeEntry)>,
     /// Entries staged out of order, and repeats; later than `tail` for the same id.
-    overlay: HashMap<i64, NodeEntry>,
+    overlay: foldhash::HashMap<i64, NodeEntry>,
     run_entries: usize,
     temp_seq: u32,
     changed: bool,
@@ -576,7 +575,7 @@ impl NodeIndexTx {
             base_is_temp: false,
             runs: Vec::new(),
             tail: Vec::new(),
-            overlay: HashMap::new(),
+            overlay: foldhash::HashMap::default(),
             run_entries: run_entries.max(1),
             temp_seq: 0,
             changed: false,
@@ -780,6 +779,7 @@ impl PreparedIndex {
 mod tests {
     use super::*;
     use rand::{Rng, SeedableRng};
+    use std::collections::HashMap;
 
     fn entry(lat: i64, lon: i64, version: u32) -> NodeEntry {
         NodeEntry {

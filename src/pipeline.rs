@@ -112,10 +112,7 @@ pub struct Analysis {
 /// The default week: the week of the last edit if the data reaches its Sunday, else the one
 /// before.
 fn default_week(store: &Store) -> Result<IsoWeek, PipelineError> {
-    let last: Option<i64> = store
-        .conn()
-        .query_row("SELECT MAX(ts) FROM edits", [], |r| r.get(0))
-        .map_err(|e| store.map_err(e))?;
+    let last: Option<i64> = store.edit_span()?.map(|s| s.1);
     let no_data = || PipelineError::NoData {
         path: store.path().to_owned(),
         message: "no edits in the database: ingest osmChange files first".to_owned(),
@@ -217,10 +214,7 @@ pub fn history_weeks(week: IsoWeek, data_first_week: Option<IsoWeek>, baseline_w
 /// # Errors
 /// On database failure.
 pub fn data_first_week(store: &Store) -> Result<Option<IsoWeek>, PipelineError> {
-    let first_ts: Option<i64> = store
-        .conn()
-        .query_row("SELECT MIN(ts) FROM edits", [], |r| r.get(0))
-        .map_err(|e| store.map_err(e))?;
+    let first_ts: Option<i64> = store.edit_span()?.map(|s| s.0);
     Ok(first_ts.and_then(IsoWeek::of_unix))
 }
 
@@ -229,12 +223,7 @@ pub fn data_first_week(store: &Store) -> Result<Option<IsoWeek>, PipelineError> 
 /// # Errors
 /// On database failure, or [`PipelineError::NoData`] when there are no edits.
 pub fn data_weeks(store: &Store) -> Result<(IsoWeek, IsoWeek), PipelineError> {
-    let (first, last): (Option<i64>, Option<i64>) = store
-        .conn()
-        .query_row("SELECT MIN(ts), MAX(ts) FROM edits", [], |r| {
-            Ok((r.get(0)?, r.get(1)?))
-        })
-        .map_err(|e| store.map_err(e))?;
+    let (first, last) = store.edit_span()?.unzip();
     first
         .and_then(IsoWeek::of_unix)
         .zip(last.and_then(IsoWeek::of_unix))

@@ -30,7 +30,9 @@ fn snapshot(db: &Path) -> Vec<String> {
     [
         "inputs",
         "changesets",
-        "edits",
+        "edit_blocks",
+        "changeset_work",
+        "grid_first",
         "elements",
         "skipped",
         "meta",

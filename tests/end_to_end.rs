@@ -202,13 +202,21 @@ fn ingesting_the_same_files_twice_counts_once() {
 
 fn table_counts(db: &Path) -> Vec<i64> {
     let c = rusqlite::Connection::open(db).unwrap();
-    ["inputs", "changesets", "edits", "elements", "skipped"]
-        .iter()
-        .map(|t| {
-            c.query_row(&format!("SELECT COUNT(*) FROM {t}"), [], |r| r.get(0))
-                .unwrap()
-        })
-        .collect()
+    [
+        "inputs",
+        "changesets",
+        "edit_blocks",
+        "changeset_work",
+        "grid_first",
+        "elements",
+        "skipped",
+    ]
+    .iter()
+    .map(|t| {
+        c.query_row(&format!("SELECT COUNT(*) FROM {t}"), [], |r| r.get(0))
+            .unwrap()
+    })
+    .collect()
 }
 
 #[test]

@@ -38,7 +38,9 @@ fn dump(db: &Path) -> Vec<String> {
     let mut out = Vec::new();
     for q in [
         "SELECT * FROM elements ORDER BY etype, eid",
-        "SELECT * FROM edits ORDER BY etype, eid, version",
+        "SELECT * FROM edit_blocks ORDER BY id",
+        "SELECT * FROM changeset_work ORDER BY changeset",
+        "SELECT * FROM grid_first ORDER BY square",
         "SELECT * FROM changesets ORDER BY id",
         "SELECT * FROM skipped ORDER BY reason",
     ] {
@@ -79,7 +81,7 @@ fn pbf_snapshot_gives_the_same_database_as_its_xml() {
     let (a, b) = (dir.path().join("xml.db"), dir.path().join("pbf.db"));
     let sa = ingest_into(&a, &snapshot_then_diffs(fixture("ingest/small.osm")));
     let sb = ingest_into(&b, &snapshot_then_diffs(fixture("ingest/small.osm.pbf")));
-    assert_eq!((sa.elements, sa.new_edits), (sb.elements, sb.new_edits));
+    assert_eq!((sa.elements, sa.edits), (sb.elements, sb.edits));
     let (da, db) = (dump(&a), dump(&b));
     assert_eq!(da, db);
     // 13 snapshot nodes and 2 created by the history diff; unknown deleted nodes have no place.
@@ -193,7 +195,7 @@ fn real_extract_matches_the_reference_reader() {
     ingest::pbf::read_pbf(&pbf, &bytes, &mut |items| {
         for it in items {
             if let Item::Element(None, el) = it {
-                *counts.entry(el.etype.unwrap().name()).or_default() += 1;
+                *counts.entry(el.etype.name()).or_default() += 1;
             }
         }
         Ok(())
@@ -306,7 +308,7 @@ fn replication_folder_reads_in_sequence_order_and_reports_its_gap() {
     );
     assert_eq!(s.files, 2);
     assert_eq!(s.replication[0].gaps, vec![(4102, 4102)]);
-    assert_eq!(s.new_edits, 3);
+    assert_eq!(s.edits, 3);
 
     // The command line says so too, and the gap is not fatal.
     let out = Command::new(env!("CARGO_BIN_EXE_hexvigil"))
@@ -345,16 +347,19 @@ fn full_history_diff_keeps_every_version_in_order() {
     let db = dir.path().join("h.db");
     ingest_into(&db, &snapshot_then_diffs(fixture("ingest/small.osm")));
     let store = Store::open(&db).unwrap();
-    let mut st = store
-        .conn()
-        .prepare("SELECT version, op, prev_version, prev_lat_e7, lat_e7 FROM edits WHERE etype = 0 AND eid = 20 ORDER BY version")
-        .unwrap();
-    let rows: Vec<(i64, i64, Option<i64>, Option<i64>, Option<i64>)> = st
-        .query_map([], |r| {
-            Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+    let edits = store.edits(i64::MIN, i64::MAX).unwrap();
+    let rows: Vec<(i64, i64, Option<i64>, Option<i32>, Option<i32>)> = edits
+        .iter()
+        .filter(|e| e.etype == ElementType::Node && e.eid == 20)
+        .map(|e| {
+            (
+                e.version,
+                e.op.code(),
+                e.prev.as_ref().map(|p| p.version),
+                e.prev.as_ref().and_then(|p| p.pos).map(|p| p.0),
+                e.pos.map(|p| p.0),
+            )
         })
-        .unwrap()
-        .map(Result::unwrap)
         .collect();
     assert_eq!(
         rows,
@@ -365,14 +370,10 @@ fn full_history_diff_keeps_every_version_in_order() {
             (4, 2, Some(3), Some(453_004_000), None),
         ]
     );
-    let ways: i64 = store
-        .conn()
-        .query_row(
-            "SELECT count(*) FROM edits WHERE etype = 1 AND eid = 30",
-            [],
-            |r| r.get(0),
-        )
-        .unwrap();
+    let ways = edits
+        .iter()
+        .filter(|e| e.etype == ElementType::Way && e.eid == 30)
+        .count();
     assert_eq!(ways, 2);
     let n20 = store.node_index().unwrap().get(20).unwrap().unwrap();
     assert_eq!((n20.coord.lat_e7(), n20.version), (453_004_000, 4));

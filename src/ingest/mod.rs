@@ -11,8 +11,14 @@
 //! One ingest command is one transaction: every input lands, or none does, in the database and
 //! in the node-location index alike (see [`crate::node_index`] for the order of the file switch
 //! and the commit). A file whose content hash is already recorded is skipped, so the same input
-//! ingested twice counts once; overlapping diffs count once too, since edits are unique by
-//! element type, id and version.
+//! ingested twice counts once; overlapping diffs count once too: readers of the edit log keep
+//! one copy of each element type, id and version.
+//!
+//! The writer does no database work for most of a diff: an edit is appended to a block of the
+//! edit log ([`crate::store::edit_log`]), a created version 1 replaces nothing and needs no
+//! lookup, and untagged nodes go only to the node-location index. Earlier states are looked up
+//! (with statements prepared once) for modifications and deletions, and `elements` rows are
+//! written for ways, relations and tagged nodes. Parsers pack tags and refs on their own threads.
 
 pub mod clip;
 pub mod pbf;
@@ -30,10 +36,16 @@ use std::time::Instant;
 use rayon::prelude::*;
 use sha2::{Digest, Sha256};
 
+use foldhash::HashMap;
+
 use crate::model::{ElementType, Op};
 use crate::node_index::{NodeEntry, NodeIndexTx};
 use crate::progress::Progress;
-use crate::store::{member_code, pack_refs, pack_tags, IngestTx, Prev, Store, StoreError};
+use crate::store::edit_log::{BlockBuilder, EditRef, PrevRef};
+use crate::store::{
+    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs, ElementRows,
+    IngestTx, Prev, Store, StoreError, Work,
+};
 use replication::{Replication, SequenceRange};
 use xml::{OsmSink, RawChangeset, RawElement, ReadError, Root, SinkError};
 
@@ -106,8 +118,9 @@ pub struct IngestSummary {
     /// Files skipped because their content was ingested before.
     pub already_ingested: u64,
     pub elements: u64,
-    /// Element versions from diffs that were new to the database.
-    pub new_edits: u64,
+    /// Element versions from diffs recorded in the edit log (a version an overlapping file
+    /// already delivered is recorded again and counted once when read).
+    pub edits: u64,
     pub changesets: u64,
     pub skipped_elements: u64,
     /// Elements and changesets dropped as outside the clip area ([`IngestExtras::clip`]).
@@ -350,12 +363,61 @@ fn line_col(path: &Path, offset: u64) -> (u64, u64) {
     (line, col)
 }
 
+/// An element version as the writer receives it: its tags and refs packed as they are stored
+/// ([`pack_tags`], [`pack_refs`]), on the parser's thread.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Element {
+    pub etype: ElementType,
+    pub id: i64,
+    pub version: i64,
+    /// Unix seconds; 0 when absent.
+    pub timestamp: i64,
+    pub changeset: i64,
+    pub uid: i64,
+    pub user: String,
+    pub visible: bool,
+    /// Latitude and longitude in 1e-7 degrees.
+    pub pos: Option<(i32, i32)>,
+    /// Packed tags.
+    pub tags: String,
+    /// Packed node refs of a way, or members of a relation ([`member_code`]).
+    pub refs: Option<Vec<u8>>,
+}
+
+impl Element {
+    /// The position as a coordinate.
+    #[must_use]
+    pub fn coord(&self) -> Option<crate::model::Coord> {
+        self.pos
+            .and_then(|(a, b)| crate::model::Coord::from_e7(a.into(), b.into()))
+    }
+
+    /// Packs a read element; `None` when the reader could not tell its type.
+    #[must_use]
+    pub fn pack(el: &RawElement) -> Option<Self> {
+        let etype = el.etype?;
+        Some(Self {
+            etype,
+            id: el.id,
+            version: el.version,
+            timestamp: el.timestamp,
+            changeset: el.changeset,
+            uid: el.uid,
+            user: el.user.clone(),
+            visible: el.visible,
+            pos: el.coord.map(|c| (c.lat_e7(), c.lon_e7())),
+            tags: pack_tags(&el.tags),
+            refs: refs_of(el),
+        })
+    }
+}
+
 /// One thing read from an input, owned so it can move from a parser thread to the writer.
 #[derive(Debug, Clone)]
 pub enum Item {
     Changeset(RawChangeset),
     /// An element version; the op is `None` in snapshots.
-    Element(Option<Op>, RawElement),
+    Element(Option<Op>, Element),
     /// An odd but valid element was skipped, for this reason.
     Skipped(&'static str),
 }
@@ -497,13 +559,17 @@ pub fn ingest_extended(
         let input = &todo[i];
         let mut w = Writer {
             tx: &tx,
+            rows: tx.element_rows()?,
             nodes: &mut nodes,
             elements: 0,
             changesets: 0,
-            new_edits: 0,
+            edits: 0,
             clipped: 0,
             clip: extras.clip,
             skipped: std::collections::BTreeMap::new(),
+            log: BlockBuilder::default(),
+            work: HashMap::default(),
+            squares: Squares::default(),
         };
         let root = loop {
             match rx.recv() {
@@ -532,6 +598,7 @@ pub fn ingest_extended(
                 message: "the root element does not match the file's content".to_owned(),
             });
         }
+        w.finish()?;
         for (reason, n) in &w.skipped {
             tx.add_skipped(reason, *n)?;
             summary.skipped_elements += n;
@@ -547,7 +614,7 @@ pub fn ingest_extended(
         summary.files += 1;
         summary.elements += w.elements;
         summary.changesets += w.changesets;
-        summary.new_edits += w.new_edits;
+        summary.edits += w.edits;
         summary.clipped += w.clipped;
         Ok(())
     })?;
@@ -722,7 +789,10 @@ impl OsmSink for BatchSink<'_> {
     }
 
     fn element(&mut self, op: Option<Op>, el: &RawElement) -> Result<(), SinkError> {
-        self.push(Item::Element(op, el.clone()))
+        match Element::pack(el) {
+            Some(p) => self.push(Item::Element(op, p)),
+            None => Ok(()),
+        }
     }
 
     fn skipped(&mut self, reason: &'static str) {
@@ -781,14 +851,44 @@ fn parse_xml(
 /// The one writer: applies items to the database transaction and the node-location index.
 struct Writer<'a, 'b> {
     tx: &'a IngestTx<'b>,
+    rows: ElementRows<'a>,
     nodes: &'a mut NodeIndexTx,
     elements: u64,
     changesets: u64,
-    new_edits: u64,
+    edits: u64,
     clipped: u64,
     clip: Option<&'a clip::Clip>,
     skipped: std::collections::BTreeMap<&'static str, u64>,
+    /// The edit log's block being filled.
+    log: BlockBuilder,
+    /// Per changeset: this input's edits.
+    work: HashMap<i64, Work>,
+    squares: Squares,
 }
+
+/// First-node times of `grid_first` squares found in one input, with the last square marked
+/// remembered: consecutive nodes of a file are often in the same square.
+#[derive(Default)]
+struct Squares {
+    map: HashMap<i64, i64>,
+    last: Option<(i64, i64)>,
+}
+
+impl Squares {
+    fn mark(&mut self, (lat, lon): (i32, i32), t: i64) {
+        let sq = grid_square(lat, lon);
+        if matches!(self.last, Some((s, v)) if s == sq && v <= t) {
+            return;
+        }
+        let v = self.map.entry(sq).or_insert(t);
+        *v = (*v).min(t);
+        self.last = Some((sq, *v));
+    }
+}
+
+/// Changesets or squares gathered before they are written, bounding the writer's memory on a
+/// huge input.
+const MAX_PENDING: usize = 1 << 20;
 
 fn refs_of(el: &RawElement) -> Option<Vec<u8>> {
     match el.etype? {
@@ -820,6 +920,10 @@ impl Writer<'_, '_> {
                     }
                 }
                 self.element(op, &el)?;
+                if self.squares.map.len() >= MAX_PENDING {
+                    self.tx.add_grid_first(&self.squares.map)?;
+                    self.squares = Squares::default();
+                }
             }
             Item::Skipped(reason) => *self.skipped.entry(reason).or_default() += 1,
         }
@@ -827,15 +931,14 @@ impl Writer<'_, '_> {
     }
 
     /// Whether an element belongs to the clip area, by the rule in [`clip`].
-    fn in_clip(&self, c: &clip::Clip, el: &RawElement) -> Result<bool, StoreError> {
-        let Some(t) = el.etype else {
-            return Ok(false);
-        };
+    fn in_clip(&self, c: &clip::Clip, el: &Element) -> Result<bool, StoreError> {
+        let t = el.etype;
         let node_inside = |id: i64| -> Result<bool, StoreError> {
             Ok(self.nodes.get(id)?.is_some_and(|e| c.contains(e.coord)))
         };
+        let refs = el.refs.as_deref().map(unpack_refs);
         Ok(match t {
-            ElementType::Node => match el.coord {
+            ElementType::Node => match el.coord() {
                 Some(p) => c.contains(p),
                 None => self.nodes.get(el.id)?.is_some() || self.tx.element(t, el.id)?.is_some(),
             },
@@ -843,7 +946,7 @@ impl Writer<'_, '_> {
                 if self.tx.element(t, el.id)?.is_some() {
                     return Ok(true);
                 }
-                for &r in &el.refs {
+                for r in refs.into_iter().flatten() {
                     if node_inside(r)? {
                         return Ok(true);
                     }
@@ -854,7 +957,7 @@ impl Writer<'_, '_> {
                 if self.tx.element(t, el.id)?.is_some() {
                     return Ok(true);
                 }
-                for &(mt, id) in &el.members {
+                for (mt, id) in refs.into_iter().flatten().filter_map(member_decode) {
                     let inside = match mt {
                         ElementType::Node => node_inside(id)?,
                         ElementType::Way => self.tx.element(mt, id)?.is_some(),
@@ -876,30 +979,51 @@ impl Writer<'_, '_> {
         Ok(())
     }
 
+    /// Writes what this input gathered beyond its elements: the last block of the edit log,
+    /// the changesets' work and the first-node squares.
+    fn finish(&mut self) -> Result<(), StoreError> {
+        self.tx.put_edit_block(self.log.take())?;
+        self.tx.add_changeset_work(&self.work)?;
+        self.work.clear();
+        self.tx.add_grid_first(&self.squares.map)?;
+        self.squares = Squares::default();
+        Ok(())
+    }
+
     /// Applies one element version. Node positions go to the node-location index; `elements`
     /// keeps ways, relations and nodes that carry (or carried) tags.
-    fn element(&mut self, op: Option<Op>, el: &RawElement) -> Result<(), StoreError> {
-        let Some(t) = el.etype else {
-            return Ok(());
-        };
+    fn element(&mut self, op: Option<Op>, el: &Element) -> Result<(), StoreError> {
+        let t = el.etype;
         self.elements += 1;
-        let pos = el.coord.map(|c| (c.lat_e7(), c.lon_e7()));
+        let pos = el.pos;
         let deleted = op == Some(Op::Delete) || !el.visible;
         let is_node = t == ElementType::Node;
-        if is_node && op.is_none() && el.tags.is_empty() {
-            // An untagged snapshot node: only its position matters. The index keeps the
-            // highest version, so no lookup is needed; this is most of a snapshot.
-            return self.stage(el.id, pos, el.version);
+        if is_node && op.is_none() {
+            // A snapshot node marks its square: since its creation when it is a version 1,
+            // else since before the data.
+            if let Some(p) = pos {
+                let since = if el.version == 1 {
+                    el.timestamp
+                } else {
+                    i64::MIN
+                };
+                self.squares.mark(p, since);
+            }
+            if el.tags.is_empty() {
+                // An untagged snapshot node: only its position matters. The index keeps the
+                // highest version, so no lookup is needed; this is most of a snapshot.
+                return self.stage(el.id, pos, el.version);
+            }
         }
         // A created version 1 replaces nothing: the lookups of earlier state are skipped (most
         // of a diff). Should the element be stored already (an overlapping file), that state
-        // is as new or newer: the edit row is then ignored, the element row kept, and the index
-        // keeps the highest version.
+        // is as new or newer: the element row is kept, the index keeps the highest version,
+        // and readers of the edit log count the repeated version once.
         let fresh = op == Some(Op::Create) && el.version == 1 && !deleted;
         let stored = if fresh {
             None
         } else {
-            self.tx.element(t, el.id)?
+            self.rows.get(t, el.id)?
         };
         // In a diff, the state a node version replaces may be known only to the index (an
         // untagged node); it is the newer of the two.
@@ -922,26 +1046,56 @@ impl Writer<'_, '_> {
             (Some(s), _) => Some(s),
             (None, i) => i.map(from_index),
         };
+        if is_node && op.is_some() {
+            if let Some(p) = pos {
+                // A created node marks its square from its creation; a node first met in an
+                // edit existed before the data.
+                if op == Some(Op::Create) {
+                    self.squares.mark(p, el.timestamp);
+                } else if prev.is_none() {
+                    self.squares.mark(p, i64::MIN);
+                }
+            }
+        }
         let newer = prev.as_ref().is_none_or(|p| p.version < el.version);
-        let tags = pack_tags(&el.tags);
-        let refs = refs_of(el);
+        let (tags, refs) = (&el.tags, &el.refs);
         if let Some(op) = op {
             let replaced = prev.as_ref().filter(|p| p.version < el.version);
-            if self.tx.put_edit(
-                t,
-                el.id,
-                el.version,
+            self.log.push(&EditRef {
+                etype: t,
+                eid: el.id,
+                version: el.version,
                 op,
-                el.changeset,
-                el.uid,
-                &el.user,
-                el.timestamp,
+                changeset: el.changeset,
+                uid: el.uid,
+                user: &el.user,
+                ts: el.timestamp,
                 pos,
-                &tags,
-                refs.as_deref(),
-                replaced,
-            )? {
-                self.new_edits += 1;
+                tags,
+                refs: refs.as_deref(),
+                prev: replaced.map(|p| PrevRef {
+                    version: p.version,
+                    ts: p.ts,
+                    tags: &p.tags,
+                    pos: p.lat_e7.zip(p.lon_e7),
+                }),
+            });
+            self.edits += 1;
+            self.work
+                .entry(el.changeset)
+                .or_insert(Work {
+                    uid: el.uid,
+                    first_ts: el.timestamp,
+                    edits: 0,
+                    deletes: 0,
+                })
+                .add(el.timestamp, op == Op::Delete);
+            if self.log.is_full() {
+                self.tx.put_edit_block(self.log.take())?;
+            }
+            if self.work.len() >= MAX_PENDING {
+                self.tx.add_changeset_work(&self.work)?;
+                self.work.clear();
             }
         }
         // A snapshot node goes on to the index even when not newer: the index keeps the highest
@@ -961,7 +1115,7 @@ impl Writer<'_, '_> {
             }
         }
         if deleted {
-            self.tx.put_element(
+            self.rows.put(
                 true,
                 t,
                 el.id,
@@ -973,7 +1127,7 @@ impl Writer<'_, '_> {
                 keep.and_then(|p| p.refs.as_deref()),
             )
         } else {
-            self.tx.put_element(
+            self.rows.put(
                 !fresh,
                 t,
                 el.id,
@@ -981,7 +1135,7 @@ impl Writer<'_, '_> {
                 el.timestamp,
                 true,
                 pos,
-                &tags,
+                tags,
                 refs.as_deref(),
             )
         }

@@ -262,5 +262,7 @@ fn convert(e: &Element<'_>) -> Result<Item, String> {
             }
         }
     }
-    Ok(Item::Element(None, el))
+    super::Element::pack(&el)
+        .map(|p| Item::Element(None, p))
+        .ok_or_else(|| "element without a type".to_owned())
 }

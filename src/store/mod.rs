@@ -1,9 +1,12 @@
 //! The state between weekly runs: an embedded SQLite database.
 //!
-//! Tables: `meta` (schema version), `inputs` (every ingested file by content hash, so a file
-//! ingested twice counts once), `changesets` (metadata), `edits` (every element version seen in a
-//! diff, unique by type, id and version, with the state it replaced), `elements` (the latest known
-//! version of every element: position, tags, node refs; this doubles as the node-location index),
+//! Tables: `meta` (schema version, node-index generation, replication sequences), `inputs`
+//! (every ingested file by content hash, so a file ingested twice counts once), `changesets`
+//! (metadata), `edit_blocks` (the edit log, [`edit_log`]: every element version seen in a diff,
+//! with the state it replaced, appended in blocks), `changeset_work` (per changeset: its mapper,
+//! first edit time, edits and deletions in the diffs, for the mappers' histories), `grid_first`
+//! (per square of about 1 km, the time the first node known there appeared), `elements` (the
+//! latest known version of every way, relation and tagged node: tags, node refs, members),
 //! `skipped` (odd elements skipped while reading, by reason).
 //!
 //! Node positions live in the node-location index ([`crate::node_index`]), a compact file next
@@ -11,7 +14,10 @@
 //! transaction as the ingest that wrote it; `elements` keeps nodes only when they carry tags.
 //!
 //! Writes happen only inside an [`IngestTx`], one SQLite transaction per ingest command: a failed
-//! ingest rolls back and leaves the database as it was.
+//! ingest rolls back and leaves the database as it was. A database of schema 1 (one `edits` row
+//! per edit) is converted when opened, in one transaction.
+
+pub mod edit_log;
 
 use std::path::{Path, PathBuf};
 
@@ -21,7 +27,7 @@ use crate::model::{ElementType, Op};
 use crate::node_index::{self, NodeEntry, NodeIndex, NodeIndexError, NodeIndexTx};
 
 /// Current database schema version.
-pub const SCHEMA_VERSION: i64 = 1;
+pub const SCHEMA_VERSION: i64 = 2;
 
 /// Errors of the state database.
 #[derive(Debug, thiserror::Error)]
@@ -35,6 +41,11 @@ pub enum StoreError {
     Schema { path: PathBuf, found: i64 },
     #[error("{path}: the database is busy: another hexvigil run is using it")]
     Busy { path: PathBuf },
+    #[error("{path}: {source}")]
+    Damaged {
+        path: PathBuf,
+        source: edit_log::DecodeError,
+    },
     #[error(transparent)]
     NodeIndex(#[from] NodeIndexError),
 }
@@ -115,14 +126,15 @@ CREATE TABLE IF NOT EXISTS changesets(
     min_lat REAL, min_lon REAL, max_lat REAL, max_lon REAL,
     num_changes INTEGER NOT NULL, comment TEXT NOT NULL, editor TEXT NOT NULL, source TEXT NOT NULL);
 CREATE INDEX IF NOT EXISTS changesets_uid ON changesets(uid, created_at);
-CREATE TABLE IF NOT EXISTS edits(
-    etype INTEGER NOT NULL, eid INTEGER NOT NULL, version INTEGER NOT NULL,
-    op INTEGER NOT NULL, changeset INTEGER NOT NULL, uid INTEGER NOT NULL, user TEXT NOT NULL,
-    ts INTEGER NOT NULL, lat_e7 INTEGER, lon_e7 INTEGER, tags TEXT NOT NULL, refs BLOB,
-    prev_version INTEGER, prev_ts INTEGER, prev_tags TEXT, prev_lat_e7 INTEGER, prev_lon_e7 INTEGER,
-    PRIMARY KEY(etype, eid, version)) WITHOUT ROWID;
-CREATE INDEX IF NOT EXISTS edits_ts ON edits(ts);
-CREATE INDEX IF NOT EXISTS edits_uid ON edits(uid, ts);
+CREATE TABLE IF NOT EXISTS edit_blocks(
+    id INTEGER PRIMARY KEY, min_ts INTEGER NOT NULL, max_ts INTEGER NOT NULL,
+    edits INTEGER NOT NULL, data BLOB NOT NULL);
+CREATE INDEX IF NOT EXISTS edit_blocks_ts ON edit_blocks(max_ts, min_ts);
+CREATE TABLE IF NOT EXISTS changeset_work(
+    changeset INTEGER PRIMARY KEY, uid INTEGER NOT NULL, first_ts INTEGER NOT NULL,
+    edits INTEGER NOT NULL, deletes INTEGER NOT NULL);
+CREATE INDEX IF NOT EXISTS changeset_work_uid ON changeset_work(uid, first_ts);
+CREATE TABLE IF NOT EXISTS grid_first(square INTEGER PRIMARY KEY, first_ts INTEGER NOT NULL);
 CREATE TABLE IF NOT EXISTS elements(
     etype INTEGER NOT NULL, eid INTEGER NOT NULL, version INTEGER NOT NULL, ts INTEGER NOT NULL,
     visible INTEGER NOT NULL, lat_e7 INTEGER, lon_e7 INTEGER, tags TEXT NOT NULL, refs BLOB,
@@ -184,6 +196,7 @@ impl Store {
             })
             .optional()
             .map_err(|e| store.map_err(e))?;
+        let mut migrate = false;
         match found.and_then(|v| v.parse::<i64>().ok()) {
             None => {
                 store
@@ -195,6 +208,7 @@ impl Store {
                     .map_err(|e| store.map_err(e))?;
             }
             Some(SCHEMA_VERSION) => {}
+            Some(1) => migrate = true,
             Some(found) => {
                 return Err(StoreError::Schema {
                     path: path.to_owned(),
@@ -203,7 +217,91 @@ impl Store {
             }
         }
         store.ensure_node_index()?;
+        if migrate {
+            store.migrate_from_1()?;
+        }
         Ok(store)
+    }
+
+    /// Converts a schema-1 database (one `edits` row per edit) in one transaction: the edits go
+    /// to the log in time order, and the per-changeset work and the first-node squares are
+    /// computed from them as an ingest would have.
+    fn migrate_from_1(&self) -> Result<(), StoreError> {
+        let err = |e| self.map_err(e);
+        let tx = Transaction::new_unchecked(&self.conn, rusqlite::TransactionBehavior::Immediate)
+            .map_err(err)?;
+        let mut created = std::collections::HashSet::new();
+        let mut squares: std::collections::HashMap<i64, i64> = std::collections::HashMap::new();
+        {
+            let mut st = tx
+                .prepare(
+                    "SELECT etype, eid, version, op, changeset, uid, user, ts, lat_e7, lon_e7, tags, refs,
+                            prev_version, prev_ts, prev_tags, prev_lat_e7, prev_lon_e7
+                     FROM edits ORDER BY ts, etype, eid, version",
+                )
+                .map_err(err)?;
+            let mut rows = st.query([]).map_err(err)?;
+            let mut builder = edit_log::BlockBuilder::default();
+            let pair = |a: Option<i32>, b: Option<i32>| a.zip(b);
+            while let Some(r) = rows.next().map_err(err)? {
+                let etype = ElementType::from_code(r.get(0).map_err(err)?);
+                let op = Op::from_code(r.get(3).map_err(err)?);
+                let (Some(etype), Some(op)) = (etype, op) else {
+                    continue;
+                };
+                let user: String = r.get(6).map_err(err)?;
+                let tags: String = r.get(10).map_err(err)?;
+                let refs: Option<Vec<u8>> = r.get(11).map_err(err)?;
+                let prev_version: Option<i64> = r.get(12).map_err(err)?;
+                let prev_tags: Option<String> = r.get(14).map_err(err)?;
+                let e = edit_log::EditRef {
+                    etype,
+                    eid: r.get(1).map_err(err)?,
+                    version: r.get(2).map_err(err)?,
+                    op,
+                    changeset: r.get(4).map_err(err)?,
+                    uid: r.get(5).map_err(err)?,
+                    user: &user,
+                    ts: r.get(7).map_err(err)?,
+                    pos: pair(r.get(8).map_err(err)?, r.get(9).map_err(err)?),
+                    tags: &tags,
+                    refs: refs.as_deref(),
+                    prev: prev_version.map(|version| edit_log::PrevRef {
+                        version,
+                        ts: r.get(13).ok().flatten(),
+                        tags: prev_tags.as_deref().unwrap_or(""),
+                        pos: pair(r.get(15).ok().flatten(), r.get(16).ok().flatten()),
+                    }),
+                };
+                if etype == ElementType::Node && op == Op::Create && e.version == 1 {
+                    created.insert(e.eid);
+                    if let Some((lat, lon)) = e.pos {
+                        let t = squares.entry(grid_square(lat, lon)).or_insert(e.ts);
+                        *t = (*t).min(e.ts);
+                    }
+                }
+                builder.push(&e);
+                if builder.is_full() {
+                    put_block(&tx, builder.take()).map_err(err)?;
+                }
+            }
+            put_block(&tx, builder.take()).map_err(err)?;
+        }
+        for entry in self.node_index()?.iter()? {
+            let (id, n) = entry?;
+            if !created.contains(&id) {
+                squares.insert(grid_square(n.coord.lat_e7(), n.coord.lon_e7()), i64::MIN);
+            }
+        }
+        put_squares(&tx, &squares).map_err(err)?;
+        tx.execute_batch(
+            "INSERT INTO changeset_work(changeset, uid, first_ts, edits, deletes)
+                 SELECT changeset, MIN(uid), MIN(ts), COUNT(*), SUM(op = 2) FROM edits GROUP BY changeset;
+             DROP TABLE edits;
+             UPDATE meta SET value = '2' WHERE key = 'schema';",
+        )
+        .map_err(err)?;
+        tx.commit().map_err(err)
     }
 
     /// Records generation 0 in a new database; in a database written before the node-location
@@ -350,6 +448,120 @@ impl Store {
         })
         .collect()
     }
+
+    /// Every edit with `from <= ts < to`, each element version once (the copy ingested first),
+    /// ordered by time, then element type, id and version.
+    ///
+    /// # Errors
+    /// On SQLite failure or a damaged block.
+    pub fn edits(&self, from: i64, to: i64) -> Result<Vec<edit_log::StoredEdit>, StoreError> {
+        let mut out = Vec::new();
+        self.for_each_edit_block(from, to, |data| {
+            edit_log::decode(data, |t| t >= from && t < to, &mut out)
+        })?;
+        edit_log::dedup_sorted(&mut out);
+        Ok(out)
+    }
+
+    /// Calls `f` with the payload of each block of the edit log whose time span meets
+    /// `from <= ts < to`, in the order they were written.
+    fn for_each_edit_block(
+        &self,
+        from: i64,
+        to: i64,
+        mut f: impl FnMut(&[u8]) -> Result<(), edit_log::DecodeError>,
+    ) -> Result<(), StoreError> {
+        let mut st = self
+            .conn
+            .prepare_cached(
+                "SELECT data FROM edit_blocks WHERE max_ts >= ?1 AND min_ts < ?2 ORDER BY id",
+            )
+            .map_err(|e| self.map_err(e))?;
+        let mut rows = st.query(params![from, to]).map_err(|e| self.map_err(e))?;
+        while let Some(r) = rows.next().map_err(|e| self.map_err(e))? {
+            let data = r.get_ref(0).map_err(|e| self.map_err(e))?;
+            let data = data
+                .as_blob()
+                .map_err(|e| self.map_err(rusqlite::Error::from(e)))?;
+            f(data).map_err(|source| StoreError::Damaged {
+                path: self.path.clone(),
+                source,
+            })?;
+        }
+        Ok(())
+    }
+
+    /// The times of the first and the last edit stored.
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn edit_span(&self) -> Result<Option<(i64, i64)>, StoreError> {
+        let (a, b): (Option<i64>, Option<i64>) = self
+            .conn
+            .query_row(
+                "SELECT MIN(min_ts), MAX(max_ts) FROM edit_blocks",
+                [],
+                |r| Ok((r.get(0)?, r.get(1)?)),
+            )
+            .map_err(|e| self.map_err(e))?;
+        Ok(a.zip(b))
+    }
+
+    /// Every changeset with edits in the diffs and the time of its first edit.
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn edited_changesets(&self) -> Result<Vec<(i64, i64)>, StoreError> {
+        let mut st = self
+            .conn
+            .prepare("SELECT changeset, first_ts FROM changeset_work ORDER BY changeset")
+            .map_err(|e| self.map_err(e))?;
+        let rows = st
+            .query_map([], |r| Ok((r.get(0)?, r.get(1)?)))
+            .map_err(|e| self.map_err(e))?;
+        rows.collect::<Result<_, _>>().map_err(|e| self.map_err(e))
+    }
+
+    /// A mapper's changesets in the diffs, by first edit time: (first edit time, edits,
+    /// deletions).
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn mapper_work(&self, uid: i64) -> Result<Vec<(i64, u64, u64)>, StoreError> {
+        let mut st = self
+            .conn
+            .prepare_cached(
+                "SELECT first_ts, edits, deletes FROM changeset_work WHERE uid = ?1
+                 ORDER BY first_ts, changeset",
+            )
+            .map_err(|e| self.map_err(e))?;
+        let rows = st
+            .query_map([uid], |r| {
+                Ok((
+                    r.get::<_, i64>(0)?,
+                    u64::try_from(r.get::<_, i64>(1)?).unwrap_or(0),
+                    u64::try_from(r.get::<_, i64>(2)?).unwrap_or(0),
+                ))
+            })
+            .map_err(|e| self.map_err(e))?;
+        rows.collect::<Result<_, _>>().map_err(|e| self.map_err(e))
+    }
+
+    /// The `grid_first` squares ([`grid_square`]) and when their first known node appeared
+    /// (`i64::MIN`: before the data).
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn grid_first(&self) -> Result<std::collections::HashMap<i64, i64>, StoreError> {
+        let mut st = self
+            .conn
+            .prepare("SELECT square, first_ts FROM grid_first")
+            .map_err(|e| self.map_err(e))?;
+        let rows = st
+            .query_map([], |r| Ok((r.get(0)?, r.get(1)?)))
+            .map_err(|e| self.map_err(e))?;
+        rows.collect::<Result<_, _>>().map_err(|e| self.map_err(e))
+    }
 }
 
 fn read_generation(conn: &Connection) -> Result<u64, rusqlite::Error> {
@@ -361,6 +573,62 @@ fn read_generation(conn: &Connection) -> Result<u64, rusqlite::Error> {
         )
         .optional()?;
     Ok(v.and_then(|v| v.parse().ok()).unwrap_or(0))
+}
+
+/// Side of a `grid_first` square, in 1e-7 degrees (0.01 degree, about 1.1 km of latitude).
+pub const GRID_E7: i32 = 100_000;
+
+/// The `grid_first` square holding a position: row and column of [`GRID_E7`] squares counted
+/// from 90° S and 180° W, as one number (`row * 65 536 + column`).
+#[must_use]
+pub fn grid_square(lat_e7: i32, lon_e7: i32) -> i64 {
+    let row = (i64::from(lat_e7) + 900_000_000).div_euclid(i64::from(GRID_E7));
+    let col = (i64::from(lon_e7) + 1_800_000_000).div_euclid(i64::from(GRID_E7));
+    row * 65_536 + col
+}
+
+fn put_block(conn: &Connection, block: Option<edit_log::Block>) -> Result<(), rusqlite::Error> {
+    if let Some(b) = block {
+        conn.prepare_cached(
+            "INSERT INTO edit_blocks(min_ts, max_ts, edits, data) VALUES(?1, ?2, ?3, ?4)",
+        )?
+        .execute(params![b.min_ts, b.max_ts, b.edits, b.data])?;
+    }
+    Ok(())
+}
+
+fn put_squares<S: std::hash::BuildHasher>(
+    conn: &Connection,
+    squares: &std::collections::HashMap<i64, i64, S>,
+) -> Result<(), rusqlite::Error> {
+    let mut sorted: Vec<(i64, i64)> = squares.iter().map(|(&k, &v)| (k, v)).collect();
+    sorted.sort_unstable();
+    let mut st = conn.prepare_cached(
+        "INSERT INTO grid_first(square, first_ts) VALUES(?1, ?2)
+         ON CONFLICT(square) DO UPDATE SET first_ts = MIN(first_ts, excluded.first_ts)",
+    )?;
+    for (k, v) in sorted {
+        st.execute(params![k, v])?;
+    }
+    Ok(())
+}
+
+/// One changeset's share of an ingest's edits, for `changeset_work`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Work {
+    pub uid: i64,
+    pub first_ts: i64,
+    pub edits: u64,
+    pub deletes: u64,
+}
+
+impl Work {
+    /// Adds one edit.
+    pub fn add(&mut self, ts: i64, delete: bool) {
+        self.first_ts = self.first_ts.min(ts);
+        self.edits += 1;
+        self.deletes += u64::from(delete);
+    }
 }
 
 /// Previous state of an element, as stored before an edit replaced it.
@@ -375,6 +643,82 @@ pub struct Prev {
     pub refs: Option<Vec<u8>>,
 }
 
+/// The `elements` statements an ingest's writer prepares once and holds for its whole run.
+pub struct ElementRows<'t> {
+    get: rusqlite::Statement<'t>,
+    replace: rusqlite::Statement<'t>,
+    keep: rusqlite::Statement<'t>,
+    path: &'t Path,
+}
+
+impl ElementRows<'_> {
+    fn err(&self, source: rusqlite::Error) -> StoreError {
+        StoreError::Sqlite {
+            path: self.path.to_owned(),
+            source,
+        }
+    }
+
+    /// The latest stored state of an element.
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn get(&mut self, t: ElementType, id: i64) -> Result<Option<Prev>, StoreError> {
+        let r = self
+            .get
+            .query_row(params![t.code(), id], |r| {
+                Ok(Prev {
+                    version: r.get(0)?,
+                    ts: r.get(1)?,
+                    tags: r.get(2)?,
+                    lat_e7: r.get(3)?,
+                    lon_e7: r.get(4)?,
+                    refs: r.get(5)?,
+                })
+            })
+            .optional();
+        r.map_err(|e| self.err(e))
+    }
+
+    /// Writes the latest state of an element. With `replace`, the caller checked the version is
+    /// newer than the stored one; without it (a version 1 written without looking up the
+    /// stored state), an existing row, which can only be as new or newer, is kept.
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    #[allow(clippy::too_many_arguments, reason = "one column each")]
+    pub fn put(
+        &mut self,
+        replace: bool,
+        t: ElementType,
+        id: i64,
+        version: i64,
+        ts: i64,
+        visible: bool,
+        pos: Option<(i32, i32)>,
+        tags: &str,
+        refs: Option<&[u8]>,
+    ) -> Result<(), StoreError> {
+        let st = if replace {
+            &mut self.replace
+        } else {
+            &mut self.keep
+        };
+        let r = st.execute(params![
+            t.code(),
+            id,
+            version,
+            ts,
+            visible,
+            pos.map(|p| p.0),
+            pos.map(|p| p.1),
+            tags,
+            refs
+        ]);
+        r.map(|_| ()).map_err(|e| self.err(e))
+    }
+}
+
 /// One ingest's write transaction.
 pub struct IngestTx<'a> {
     tx: Transaction<'a>,
@@ -387,6 +731,28 @@ impl IngestTx<'_> {
             path: self.path.clone(),
             source,
         }
+    }
+
+    /// Prepares the `elements` statements of the writer.
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn element_rows(&self) -> Result<ElementRows<'_>, StoreError> {
+        let prep = |sql: &str| self.tx.prepare(sql).map_err(|e| self.err(e));
+        Ok(ElementRows {
+            get: prep(
+                "SELECT version, ts, tags, lat_e7, lon_e7, refs FROM elements WHERE etype = ?1 AND eid = ?2",
+            )?,
+            replace: prep(
+                "INSERT OR REPLACE INTO elements(etype, eid, version, ts, visible, lat_e7, lon_e7, tags, refs)
+                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
+            )?,
+            keep: prep(
+                "INSERT OR IGNORE INTO elements(etype, eid, version, ts, visible, lat_e7, lon_e7, tags, refs)
+                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
+            )?,
+            path: &self.path,
+        })
     }
 
     /// The committed node-index generation (the one this transaction started from).
@@ -518,99 +884,51 @@ impl IngestTx<'_> {
         .map_err(|e| self.err(e))
     }
 
-    /// Writes the latest state of an element. With `replace`, the caller checked the version is
-    /// newer than the stored one; without it (a version 1 written without looking up the
-    /// stored state), an existing row, which can only be as new or newer, is kept.
+    /// Appends a block of the edit log.
     ///
     /// # Errors
     /// On SQLite failure.
-    #[allow(clippy::too_many_arguments, reason = "one column each")]
-    pub fn put_element(
-        &self,
-        replace: bool,
-        t: ElementType,
-        id: i64,
-        version: i64,
-        ts: i64,
-        visible: bool,
-        pos: Option<(i32, i32)>,
-        tags: &str,
-        refs: Option<&[u8]>,
-    ) -> Result<(), StoreError> {
-        let mut st = self
-            .tx
-            .prepare_cached(if replace {
-                "INSERT OR REPLACE INTO elements(etype, eid, version, ts, visible, lat_e7, lon_e7, tags, refs)
-                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)"
-            } else {
-                "INSERT OR IGNORE INTO elements(etype, eid, version, ts, visible, lat_e7, lon_e7, tags, refs)
-                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)"
-            })
-            .map_err(|e| self.err(e))?;
-        st.execute(params![
-            t.code(),
-            id,
-            version,
-            ts,
-            visible,
-            pos.map(|p| p.0),
-            pos.map(|p| p.1),
-            tags,
-            refs
-        ])
-        .map(|_| ())
-        .map_err(|e| self.err(e))
+    pub fn put_edit_block(&self, block: Option<edit_log::Block>) -> Result<(), StoreError> {
+        put_block(&self.tx, block).map_err(|e| self.err(e))
     }
 
-    /// Records one edit; returns false when that element version was already stored.
+    /// Adds changesets' work (edits and deletions, first edit time) from the diffs.
     ///
     /// # Errors
     /// On SQLite failure.
-    #[allow(clippy::too_many_arguments, reason = "one column each")]
-    pub fn put_edit(
+    pub fn add_changeset_work(
         &self,
-        t: ElementType,
-        id: i64,
-        version: i64,
-        op: Op,
-        changeset: i64,
-        uid: i64,
-        user: &str,
-        ts: i64,
-        pos: Option<(i32, i32)>,
-        tags: &str,
-        refs: Option<&[u8]>,
-        prev: Option<&Prev>,
-    ) -> Result<bool, StoreError> {
+        work: &foldhash::HashMap<i64, Work>,
+    ) -> Result<(), StoreError> {
+        let mut sorted: Vec<(i64, Work)> = work.iter().map(|(&k, &v)| (k, v)).collect();
+        sorted.sort_unstable_by_key(|w| w.0);
         let mut st = self
             .tx
             .prepare_cached(
-                "INSERT OR IGNORE INTO edits(etype, eid, version, op, changeset, uid, user, ts, lat_e7, lon_e7, tags, refs,
-                    prev_version, prev_ts, prev_tags, prev_lat_e7, prev_lon_e7)
-                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17)",
+                "INSERT INTO changeset_work(changeset, uid, first_ts, edits, deletes) VALUES(?1, ?2, ?3, ?4, ?5)
+                 ON CONFLICT(changeset) DO UPDATE SET first_ts = MIN(first_ts, excluded.first_ts),
+                    edits = edits + excluded.edits, deletes = deletes + excluded.deletes",
             )
             .map_err(|e| self.err(e))?;
-        st.execute(params![
-            t.code(),
-            id,
-            version,
-            op.code(),
-            changeset,
-            uid,
-            user,
-            ts,
-            pos.map(|p| p.0),
-            pos.map(|p| p.1),
-            tags,
-            refs,
-            prev.map(|p| p.version),
-            prev.and_then(|p| p.ts),
-            prev.map(|p| p.tags.as_str()),
-            prev.and_then(|p| p.lat_e7),
-            prev.and_then(|p| p.lon_e7),
-        ])
-        .map(|n| n > 0)
-        .map_err(|e| self.err(e))
+        for (cs, w) in sorted {
+            st.execute(params![
+                cs,
+                w.uid,
+                w.first_ts,
+                i64::try_from(w.edits).unwrap_or(i64::MAX),
+                i64::try_from(w.deletes).unwrap_or(i64::MAX)
+            ])
+            .map_err(|e| self.err(e))?;
+        }
+        Ok(())
+    }
+
+    /// Lowers the first-node times of `grid_first` squares ([`grid_square`]).
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn add_grid_first(&self, squares: &foldhash::HashMap<i64, i64>) -> Result<(), StoreError> {
+        put_squares(&self.tx, squares).map_err(|e| self.err(e))
     }
 
     /// Adds to the skipped-element count for a reason.
@@ -728,6 +1046,124 @@ mod tests {
         // Opened again: nothing more to do.
         drop(s);
         assert_eq!(Store::open(&path).unwrap().node_index().unwrap().len(), 1);
+    }
+
+    /// A database of schema 1 (one `edits` row per edit) is converted when opened: the same
+    /// edits come back from the log, with the changesets' work and first-node squares.
+    #[test]
+    fn a_schema_1_database_is_converted_on_open() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("v1.db");
+        Connection::open(&path)
+            .unwrap()
+            .execute_batch(
+                "CREATE TABLE meta(key TEXT PRIMARY KEY, value TEXT NOT NULL);
+                 INSERT INTO meta VALUES('schema', '1'), ('nodes_generation', '0');
+                 CREATE TABLE edits(
+                    etype INTEGER NOT NULL, eid INTEGER NOT NULL, version INTEGER NOT NULL,
+                    op INTEGER NOT NULL, changeset INTEGER NOT NULL, uid INTEGER NOT NULL, user TEXT NOT NULL,
+                    ts INTEGER NOT NULL, lat_e7 INTEGER, lon_e7 INTEGER, tags TEXT NOT NULL, refs BLOB,
+                    prev_version INTEGER, prev_ts INTEGER, prev_tags TEXT, prev_lat_e7 INTEGER, prev_lon_e7 INTEGER,
+                    PRIMARY KEY(etype, eid, version)) WITHOUT ROWID;
+                 INSERT INTO edits VALUES(0, 5, 1, 0, 77, 9, 'Ann', 1000, 452000000, -336000000, '',
+                    NULL, NULL, NULL, NULL, NULL, NULL);
+                 INSERT INTO edits VALUES(0, 5, 2, 1, 78, 9, 'Ann', 2000, 452000100, -336000000,
+                    'a' || char(31) || 'b' || char(30), NULL, 1, 1000, '', 452000000, -336000000);
+                 INSERT INTO edits VALUES(1, 6, 3, 2, 78, 9, 'Ann', 2100, NULL, NULL, '',
+                    x'0500000000000000', 2, 1500, 'building' || char(31) || 'yes' || char(30), NULL, NULL);",
+            )
+            .unwrap();
+        let s = Store::open(&path).unwrap();
+        let edits = s.edits(i64::MIN, i64::MAX).unwrap();
+        let brief: Vec<_> = edits
+            .iter()
+            .map(|e| {
+                (
+                    e.etype,
+                    e.eid,
+                    e.version,
+                    e.op,
+                    e.changeset,
+                    e.user.as_str(),
+                    e.ts,
+                    e.pos,
+                    e.tags.as_str(),
+                    e.refs.clone(),
+                    e.prev.clone(),
+                )
+            })
+            .collect();
+        assert_eq!(
+            brief,
+            vec![
+                (
+                    ElementType::Node,
+                    5,
+                    1,
+                    Op::Create,
+                    77,
+                    "Ann",
+                    1000,
+                    Some((452_000_000, -336_000_000)),
+                    "",
+                    None,
+                    None
+                ),
+                (
+                    ElementType::Node,
+                    5,
+                    2,
+                    Op::Modify,
+                    78,
+                    "Ann",
+                    2000,
+                    Some((452_000_100, -336_000_000)),
+                    "a\x1Fb\x1E",
+                    None,
+                    Some(edit_log::PrevState {
+                        version: 1,
+                        ts: Some(1000),
+                        tags: String::new(),
+                        pos: Some((452_000_000, -336_000_000))
+                    }),
+                ),
+                (
+                    ElementType::Way,
+                    6,
+                    3,
+                    Op::Delete,
+                    78,
+                    "Ann",
+                    2100,
+                    None,
+                    "",
+                    Some(pack_refs([5])),
+                    Some(edit_log::PrevState {
+                        version: 2,
+                        ts: Some(1500),
+                        tags: "building\x1Fyes\x1E".into(),
+                        pos: None
+                    }),
+                ),
+            ]
+        );
+        assert_eq!(s.mapper_work(9).unwrap(), vec![(1000, 1, 0), (2000, 2, 1)]);
+        let squares = s.grid_first().unwrap();
+        assert_eq!(squares.len(), 1);
+        assert_eq!(
+            squares.get(&grid_square(452_000_000, -336_000_000)),
+            Some(&1000)
+        );
+        assert_eq!(s.meta("schema").unwrap().as_deref(), Some("2"));
+        let old: i64 = s
+            .conn()
+            .query_row(
+                "SELECT count(*) FROM sqlite_master WHERE name = 'edits'",
+                [],
+                |r| r.get(0),
+            )
+            .unwrap();
+        assert_eq!(old, 0);
     }
 
     #[test]

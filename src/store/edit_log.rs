@@ -1,0 +1,554 @@
+//! The edit log: every element version read from a diff, with the state it replaced, appended
+//! to the database in blocks of a few thousand edits (one `edit_blocks` row each) instead of one
+//! row per edit. An ingest only appends, so it does no B-tree work per edit; readers select the
+//! blocks whose time span meets their window and decode them.
+//!
+//! A block's payload is a format byte (1) and then, per edit, in order:
+//!
+//! | field | encoding |
+//! |---|---|
+//! | flags | one byte: bits 0-1 element type code, bits 2-3 op code, bit 4 has a position, bit 5 has refs, bit 6 has an earlier state, bit 7 the mapper's name follows |
+//! | element id, changeset, uid, timestamp | zigzag varints of the difference from the block's previous edit |
+//! | version | zigzag varint |
+//! | mapper's name | only when flag bit 7: varint length and UTF-8 bytes (once per mapper per block) |
+//! | position | when flag bit 4: latitude and longitude in 1e-7 degrees, zigzag varints of the difference from the block's previous position |
+//! | tags | varint length and the packed tags ([`super::pack_tags`]) |
+//! | refs | when flag bit 5: varint length and the packed refs ([`super::pack_refs`]) |
+//! | earlier state | when flag bit 6: a byte (bit 0 has a timestamp, bit 1 has a position), the version (zigzag), the timestamp as a zigzag difference from this edit's, the packed tags (length and bytes), the position (zigzag, absolute) |
+//!
+//! Varints are LEB128 (7 bits per byte, low first); zigzag maps signed to unsigned (Source:
+//! Protocol Buffers encoding guide, "Base 128 Varints" and "ZigZag encoding").
+//!
+//! The log keeps what the files said, repeats included: two overlapping diffs put the same
+//! element version in two blocks. Readers count it once ([`dedup_sorted`]), keeping the copy
+//! ingested first, as a unique key would.
+
+use std::collections::HashMap;
+
+use crate::model::{ElementType, Op};
+
+/// Edits per block before it is written.
+pub const BLOCK_EDITS: usize = 8192;
+/// Payload bytes per block before it is written (a block of large edits closes early).
+pub const BLOCK_BYTES: usize = 4 << 20;
+
+const FORMAT: u8 = 1;
+
+/// One edit as read back from the log.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct StoredEdit {
+    pub etype: ElementType,
+    pub eid: i64,
+    pub version: i64,
+    pub op: Op,
+    pub changeset: i64,
+    pub uid: i64,
+    pub user: String,
+    /// Unix seconds.
+    pub ts: i64,
+    /// Latitude and longitude in 1e-7 degrees, when the file gave them.
+    pub pos: Option<(i32, i32)>,
+    /// Packed tags ([`super::pack_tags`]); empty for deletions.
+    pub tags: String,
+    /// Packed node refs or relation members ([`super::pack_refs`]).
+    pub refs: Option<Vec<u8>>,
+    /// The state this version replaced, when one was stored.
+    pub prev: Option<PrevState>,
+}
+
+/// The stored state an edit replaced.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct PrevState {
+    pub version: i64,
+    /// Unknown for untagged nodes, which only the node-location index holds.
+    pub ts: Option<i64>,
+    pub tags: String,
+    pub pos: Option<(i32, i32)>,
+}
+
+/// An edit to append, borrowing from the reader's element.
+#[derive(Debug, Clone, Copy)]
+pub struct EditRef<'a> {
+    pub etype: ElementType,
+    pub eid: i64,
+    pub version: i64,
+    pub op: Op,
+    pub changeset: i64,
+    pub uid: i64,
+    pub user: &'a str,
+    pub ts: i64,
+    pub pos: Option<(i32, i32)>,
+    pub tags: &'a str,
+    pub refs: Option<&'a [u8]>,
+    pub prev: Option<PrevRef<'a>>,
+}
+
+/// The replaced state of an [`EditRef`].
+#[derive(Debug, Clone, Copy)]
+pub struct PrevRef<'a> {
+    pub version: i64,
+    pub ts: Option<i64>,
+    pub tags: &'a str,
+    pub pos: Option<(i32, i32)>,
+}
+
+/// A finished block, ready to be written.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Block {
+    pub min_ts: i64,
+    pub max_ts: i64,
+    pub edits: u32,
+    pub data: Vec<u8>,
+}
+
+/// The running state both the encoder and the decoder keep (the previous edit's values).
+#[derive(Debug, Default, Clone, Copy)]
+struct Last {
+    eid: i64,
+    changeset: i64,
+    uid: i64,
+    ts: i64,
+    lat: i32,
+    lon: i32,
+}
+
+/// Collects edits into a block.
+#[derive(Debug, Default)]
+pub struct BlockBuilder {
+    data: Vec<u8>,
+    edits: u32,
+    min_ts: i64,
+    max_ts: i64,
+    last: Last,
+    /// Mappers whose name is already in this block.
+    named: std::collections::HashSet<i64>,
+}
+
+fn put_varint(out: &mut Vec<u8>, mut v: u64) {
+    while v >= 0x80 {
+        out.push((v as u8) | 0x80);
+        v >>= 7;
+    }
+    out.push(v as u8);
+}
+
+const fn zigzag(v: i64) -> u64 {
+    ((v << 1) ^ (v >> 63)) as u64
+}
+
+const fn unzigzag(v: u64) -> i64 {
+    ((v >> 1) as i64) ^ -((v & 1) as i64)
+}
+
+fn put_signed(out: &mut Vec<u8>, v: i64) {
+    put_varint(out, zigzag(v));
+}
+
+fn put_bytes(out: &mut Vec<u8>, b: &[u8]) {
+    put_varint(out, b.len() as u64);
+    out.extend_from_slice(b);
+}
+
+impl BlockBuilder {
+    /// Appends one edit.
+    pub fn push(&mut self, e: &EditRef<'_>) {
+        if self.edits == 0 {
+            self.data.clear();
+            self.data.push(FORMAT);
+            self.last = Last::default();
+            self.named.clear();
+            self.min_ts = e.ts;
+            self.max_ts = e.ts;
+        }
+        self.min_ts = self.min_ts.min(e.ts);
+        self.max_ts = self.max_ts.max(e.ts);
+        let new_user = self.named.insert(e.uid);
+        let flags = (e.etype.code() as u8 & 3)
+            | ((e.op.code() as u8 & 3) << 2)
+            | (u8::from(e.pos.is_some()) << 4)
+            | (u8::from(e.refs.is_some()) << 5)
+            | (u8::from(e.prev.is_some()) << 6)
+            | (u8::from(new_user) << 7);
+        let d = &mut self.data;
+        let last = &mut self.last;
+        d.push(flags);
+        put_signed(d, e.eid.wrapping_sub(last.eid));
+        put_signed(d, e.changeset.wrapping_sub(last.changeset));
+        put_signed(d, e.uid.wrapping_sub(last.uid));
+        put_signed(d, e.ts.wrapping_sub(last.ts));
+        put_signed(d, e.version);
+        (last.eid, last.changeset, last.uid, last.ts) = (e.eid, e.changeset, e.uid, e.ts);
+        if new_user {
+            put_bytes(d, e.user.as_bytes());
+        }
+        if let Some((lat, lon)) = e.pos {
+            put_signed(d, i64::from(lat) - i64::from(last.lat));
+            put_signed(d, i64::from(lon) - i64::from(last.lon));
+            (last.lat, last.lon) = (lat, lon);
+        }
+        put_bytes(d, e.tags.as_bytes());
+        if let Some(r) = e.refs {
+            put_bytes(d, r);
+        }
+        if let Some(p) = e.prev {
+            d.push(u8::from(p.ts.is_some()) | (u8::from(p.pos.is_some()) << 1));
+            put_signed(d, p.version);
+            if let Some(t) = p.ts {
+                put_signed(d, e.ts.wrapping_sub(t));
+            }
+            put_bytes(d, p.tags.as_bytes());
+            if let Some((lat, lon)) = p.pos {
+                put_signed(d, i64::from(lat));
+                put_signed(d, i64::from(lon));
+            }
+        }
+        self.edits += 1;
+    }
+
+    /// Whether the block has reached its size.
+    #[must_use]
+    pub fn is_full(&self) -> bool {
+        self.edits as usize >= BLOCK_EDITS || self.data.len() >= BLOCK_BYTES
+    }
+
+    /// The finished block, if it holds any edit; the builder starts a new one.
+    pub fn take(&mut self) -> Option<Block> {
+        if self.edits == 0 {
+            return None;
+        }
+        let block = Block {
+            min_ts: self.min_ts,
+            max_ts: self.max_ts,
+            edits: self.edits,
+            data: std::mem::take(&mut self.data),
+        };
+        self.edits = 0;
+        Some(block)
+    }
+}
+
+/// A block's payload does not decode.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("damaged edit block at byte {offset}: {message}")]
+pub struct DecodeError {
+    pub offset: usize,
+    pub message: &'static str,
+}
+
+struct Cursor<'a> {
+    data: &'a [u8],
+    at: usize,
+}
+
+impl<'a> Cursor<'a> {
+    fn fail(&self, message: &'static str) -> DecodeError {
+        DecodeError {
+            offset: self.at,
+            message,
+        }
+    }
+
+    fn byte(&mut self) -> Result<u8, DecodeError> {
+        let b = *self
+            .data
+            .get(self.at)
+            .ok_or_else(|| self.fail("ends inside an edit"))?;
+        self.at += 1;
+        Ok(b)
+    }
+
+    fn varint(&mut self) -> Result<u64, DecodeError> {
+        let mut v = 0u64;
+        for shift in (0..64).step_by(7) {
+            let b = self.byte()?;
+            v |= u64::from(b & 0x7F) << shift;
+            if b < 0x80 {
+                return Ok(v);
+            }
+        }
+        Err(self.fail("varint longer than 64 bits"))
+    }
+
+    fn signed(&mut self) -> Result<i64, DecodeError> {
+        Ok(unzigzag(self.varint()?))
+    }
+
+    fn coord(&mut self) -> Result<i32, DecodeError> {
+        let v = self.signed()?;
+        i32::try_from(v).map_err(|_| self.fail("coordinate out of range"))
+    }
+
+    fn bytes(&mut self) -> Result<&'a [u8], DecodeError> {
+        let n = usize::try_from(self.varint()?).map_err(|_| self.fail("length out of range"))?;
+        let end = self
+            .at
+            .checked_add(n)
+            .filter(|&e| e <= self.data.len())
+            .ok_or_else(|| self.fail("length past the end"))?;
+        let b = &self.data[self.at..end];
+        self.at = end;
+        Ok(b)
+    }
+
+    fn text(&mut self) -> Result<String, DecodeError> {
+        let b = self.bytes()?;
+        String::from_utf8(b.to_vec()).map_err(|_| self.fail("text is not UTF-8"))
+    }
+}
+
+/// Decodes a block's payload, calling `keep` on each edit's timestamp first: edits it refuses
+/// are skipped without building their strings.
+///
+/// # Errors
+/// When the payload is damaged.
+pub fn decode(
+    data: &[u8],
+    mut keep: impl FnMut(i64) -> bool,
+    out: &mut Vec<StoredEdit>,
+) -> Result<(), DecodeError> {
+    let mut c = Cursor { data, at: 0 };
+    if c.byte()? != FORMAT {
+        return Err(c.fail("unknown block format"));
+    }
+    let mut last = Last::default();
+    let mut users: HashMap<i64, String> = HashMap::new();
+    while c.at < data.len() {
+        let flags = c.byte()?;
+        let etype = ElementType::from_code(i64::from(flags & 3))
+            .ok_or_else(|| c.fail("unknown element type"))?;
+        let op = Op::from_code(i64::from((flags >> 2) & 3)).ok_or_else(|| c.fail("unknown op"))?;
+        last.eid = last.eid.wrapping_add(c.signed()?);
+        last.changeset = last.changeset.wrapping_add(c.signed()?);
+        last.uid = last.uid.wrapping_add(c.signed()?);
+        last.ts = last.ts.wrapping_add(c.signed()?);
+        let version = c.signed()?;
+        if flags & 0x80 != 0 {
+            let name = c.text()?;
+            users.insert(last.uid, name);
+        }
+        let pos = if flags & 0x10 != 0 {
+            let lat = i64::from(last.lat) + c.signed()?;
+            let lon = i64::from(last.lon) + c.signed()?;
+            last.lat = i32::try_from(lat).map_err(|_| c.fail("coordinate out of range"))?;
+            last.lon = i32::try_from(lon).map_err(|_| c.fail("coordinate out of range"))?;
+            Some((last.lat, last.lon))
+        } else {
+            None
+        };
+        let wanted = keep(last.ts);
+        let tags = c.bytes()?;
+        let refs = if flags & 0x20 != 0 {
+            Some(c.bytes()?)
+        } else {
+            None
+        };
+        let prev = if flags & 0x40 != 0 {
+            let pflags = c.byte()?;
+            let version = c.signed()?;
+            let ts = if pflags & 1 != 0 {
+                Some(last.ts.wrapping_sub(c.signed()?))
+            } else {
+                None
+            };
+            let tags = c.bytes()?;
+            let pos = if pflags & 2 != 0 {
+                Some((c.coord()?, c.coord()?))
+            } else {
+                None
+            };
+            Some((version, ts, tags, pos))
+        } else {
+            None
+        };
+        if !wanted {
+            continue;
+        }
+        let at = c.at;
+        let text = |b: &[u8]| {
+            std::str::from_utf8(b)
+                .map(str::to_owned)
+                .map_err(|_| DecodeError {
+                    offset: at,
+                    message: "text is not UTF-8",
+                })
+        };
+        out.push(StoredEdit {
+            etype,
+            eid: last.eid,
+            version,
+            op,
+            changeset: last.changeset,
+            uid: last.uid,
+            user: users
+                .get(&last.uid)
+                .cloned()
+                .ok_or_else(|| c.fail("mapper without a name"))?,
+            ts: last.ts,
+            pos,
+            tags: text(tags)?,
+            refs: refs.map(<[u8]>::to_vec),
+            prev: match prev {
+                Some((version, ts, tags, pos)) => Some(PrevState {
+                    version,
+                    ts,
+                    tags: text(tags)?,
+                    pos,
+                }),
+                None => None,
+            },
+        });
+    }
+    Ok(())
+}
+
+/// Sorts edits read in log order by time, then type, id and version, keeping the first copy
+/// read of each element version (the one ingested first).
+pub fn dedup_sorted(edits: &mut Vec<StoredEdit>) {
+    // Stable: equal keys keep their log order, so the first copy survives the dedup.
+    edits.sort_by_key(|e| (e.etype.code(), e.eid, e.version));
+    edits.dedup_by(|b, a| (a.etype, a.eid, a.version) == (b.etype, b.eid, b.version));
+    edits.sort_by_key(|e| (e.ts, e.etype.code(), e.eid, e.version));
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn sample(i: i64) -> StoredEdit {
+        StoredEdit {
+            etype: [ElementType::Node, ElementType::Way, ElementType::Relation][(i % 3) as usize],
+            eid: 1_000_000_000 - i * 7919,
+            version: 1 + i % 5,
+            op: [Op::Create, Op::Modify, Op::Delete][(i % 3) as usize],
+            changeset: 90_000_000 + i / 10,
+            uid: i % 4 - 1,
+            user: format!("mapper {}", i % 4),
+            ts: 1_769_990_400 + i * 13 - (i % 7) * 100,
+            pos: (i % 4 != 0).then_some((-900_000_000 + (i as i32) * 3, 1_799_999_999 - i as i32)),
+            tags: if i % 2 == 0 {
+                String::new()
+            } else {
+                super::super::pack_tags(&[("name".into(), format!("Café {i}"))])
+            },
+            refs: (i % 3 == 1).then(|| super::super::pack_refs([i, -i, i64::MAX])),
+            prev: (i % 5 != 0).then(|| PrevState {
+                version: i % 5,
+                ts: (i % 2 == 0).then_some(1_700_000_000 + i),
+                tags: "a\u{1F}b\u{1E}".into(),
+                pos: (i % 3 == 0).then_some((900_000_000, -1_800_000_000)),
+            }),
+        }
+    }
+
+    fn push(b: &mut BlockBuilder, e: &StoredEdit) {
+        b.push(&EditRef {
+            etype: e.etype,
+            eid: e.eid,
+            version: e.version,
+            op: e.op,
+            changeset: e.changeset,
+            uid: e.uid,
+            user: &e.user,
+            ts: e.ts,
+            pos: e.pos,
+            tags: &e.tags,
+            refs: e.refs.as_deref(),
+            prev: e.prev.as_ref().map(|p| PrevRef {
+                version: p.version,
+                ts: p.ts,
+                tags: &p.tags,
+                pos: p.pos,
+            }),
+        });
+    }
+
+    #[test]
+    fn blocks_round_trip() {
+        let edits: Vec<StoredEdit> = (0..500).map(sample).collect();
+        let mut b = BlockBuilder::default();
+        for e in &edits {
+            push(&mut b, e);
+        }
+        let block = b.take().unwrap();
+        assert_eq!(block.edits, 500);
+        assert_eq!(block.min_ts, edits.iter().map(|e| e.ts).min().unwrap());
+        assert_eq!(block.max_ts, edits.iter().map(|e| e.ts).max().unwrap());
+        let mut back = Vec::new();
+        decode(&block.data, |_| true, &mut back).unwrap();
+        assert_eq!(back, edits);
+        // The builder starts afresh: a second block decodes on its own.
+        push(&mut b, &edits[7]);
+        let second = b.take().unwrap();
+        let mut one = Vec::new();
+        decode(&second.data, |_| true, &mut one).unwrap();
+        assert_eq!(one, vec![edits[7].clone()]);
+        assert!(b.take().is_none());
+    }
+
+    #[test]
+    fn filter_skips_without_losing_the_thread() {
+        let edits: Vec<StoredEdit> = (0..200).map(sample).collect();
+        let mut b = BlockBuilder::default();
+        for e in &edits {
+            push(&mut b, e);
+        }
+        let block = b.take().unwrap();
+        let mut back = Vec::new();
+        decode(&block.data, |t| t % 2 == 0, &mut back).unwrap();
+        let want: Vec<_> = edits.into_iter().filter(|e| e.ts % 2 == 0).collect();
+        assert_eq!(back, want);
+    }
+
+    #[test]
+    fn damaged_blocks_are_errors_not_panics() {
+        let mut b = BlockBuilder::default();
+        for e in (0..50).map(sample) {
+            push(&mut b, &e);
+        }
+        let block = b.take().unwrap();
+        for cut in 0..block.data.len() {
+            let mut out = Vec::new();
+            // Every prefix either decodes (at an edit boundary) or fails; none panics.
+            let _ = decode(&block.data[..cut], |_| true, &mut out);
+        }
+        let mut out = Vec::new();
+        assert!(decode(&[9, 0], |_| true, &mut out).is_err());
+        assert!(decode(&block.data[..block.data.len() - 1], |_| true, &mut out).is_err());
+    }
+
+    #[test]
+    fn repeats_count_once_and_the_first_copy_wins() {
+        let mut a = sample(3);
+        let mut b = a.clone();
+        b.prev = None;
+        let c = sample(4);
+        a.ts += 10;
+        b.ts += 10;
+        let mut v = vec![c.clone(), a.clone(), b, c.clone()];
+        dedup_sorted(&mut v);
+        let mut want = vec![a, c];
+        want.sort_by_key(|e| e.ts);
+        assert_eq!(v, want);
+    }
+
+    #[test]
+    fn zigzag_matches_the_protocol_buffers_table() {
+        // Source: Protocol Buffers encoding guide, ZigZag table: 0→0, -1→1, 1→2, -2→3,
+        // 2147483647→4294967294, -2147483648→4294967295.
+        for (s, u) in [
+            (0i64, 0u64),
+            (-1, 1),
+            (1, 2),
+            (-2, 3),
+            (2_147_483_647, 4_294_967_294),
+            (-2_147_483_648, 4_294_967_295),
+        ] {
+            assert_eq!(zigzag(s), u);
+            assert_eq!(unzigzag(u), s);
+        }
+        // Source: same guide, "150" is encoded as 96 01.
+        let mut out = Vec::new();
+        put_varint(&mut out, 150);
+        assert_eq!(out, vec![0x96, 0x01]);
+    }
+}
