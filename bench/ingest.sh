@@ -8,7 +8,7 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 n=${1:-5000000}
-cargo build --release --bin hexvigil --example bench_osc
+cargo build --release --bin hexvigil --example bench_osc --example bench_parse
 bin=${HEXVIGIL:-target/release/hexvigil}
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
@@ -16,16 +16,18 @@ trap 'rm -rf "$work"' EXIT
 target/release/examples/bench_osc "$work/week.osc.gz" "$n"
 echo "file: $n elements, $(stat -c %s "$work/week.osc.gz") bytes gzip, $(gzip -dc "$work/week.osc.gz" | wc -c) bytes of XML"
 
-timed() { # label, command...: prints "label | seconds | peak MiB"
+timed() { # label, command...: prints "label | wall seconds | CPU seconds | peak MiB"
     local label=$1; shift
     sync # the previous run's dirty pages would otherwise be written back during this one
-    /usr/bin/time -f "%e %M" -o "$work/t" "$@" > /dev/null 2> "$work/err" || { cat "$work/err"; exit 1; }
-    read -r secs kb < "$work/t"
-    printf '| %s | %s s | %d MiB |\n' "$label" "$secs" $((kb / 1024))
+    /usr/bin/time -f "%e %U %S %M" -o "$work/t" "$@" > /dev/null 2> "$work/err" || { cat "$work/err"; exit 1; }
+    read -r secs user sys kb < "$work/t"
+    printf '| %s | %s s | %s s | %d MiB |\n' "$label" "$secs" "$(echo "$user + $sys" | bc)" $((kb / 1024))
 }
-echo "| run | wall time | peak memory |"
-echo "|---|---|---|"
+echo "| run | wall time | CPU time | peak memory |"
+echo "|---|---|---|---|"
 timed "gzip -dc (floor)" gzip -dc "$work/week.osc.gz"
+timed "hexvigil's decompression alone, 1 core" taskset -c 0 target/release/examples/bench_parse "$work/week.osc.gz" --decompress-only
+timed "hexvigil's decompression + XML reader, no database, 1 core" taskset -c 0 target/release/examples/bench_parse "$work/week.osc.gz"
 timed "hexvigil ingest, 1 core" taskset -c 0 "$bin" --quiet ingest --db "$work/one.db" "$work/week.osc.gz"
 timed "hexvigil ingest, $(nproc) cores" "$bin" ingest --db "$work/all.db" "$work/week.osc.gz"
 echo "summary line: $(tail -1 "$work/err")"

@@ -666,3 +666,76 @@ fn concurrent_ingest_is_refused_while_the_first_completes() {
     assert!(ingest_bin(&db, &inputs).status().unwrap().success());
     assert_eq!(dump(&db), dump(&clean));
 }
+
+/// The node-location index marks the nodes that have a row in `elements`, and the writer skips
+/// the `elements` lookup for the others: the earlier state of a tagged node still comes from
+/// its row (its tags), that of an untagged node from the index (its position).
+#[test]
+fn earlier_state_of_tagged_and_untagged_nodes() {
+    let dir = tempfile::tempdir().unwrap();
+    let snap = dir.path().join("snap.osm");
+    let diff = dir.path().join("diff.osc");
+    std::fs::write(
+        &snap,
+        r#"<osm version="0.6">
+<node id="1" version="1" changeset="1" uid="1" user="a" timestamp="2026-01-01T00:00:00Z" lat="10" lon="20"><tag k="amenity" v="bench"/></node>
+<node id="2" version="1" changeset="1" uid="1" user="a" timestamp="2026-01-01T00:00:00Z" lat="11" lon="21"/>
+</osm>"#,
+    )
+    .unwrap();
+    std::fs::write(
+        &diff,
+        r#"<osmChange version="0.6"><modify>
+<node id="1" version="2" changeset="2" uid="2" user="b" timestamp="2026-02-02T00:00:00Z" lat="10.5" lon="20"/>
+<node id="2" version="2" changeset="2" uid="2" user="b" timestamp="2026-02-02T00:00:00Z" lat="11.5" lon="21"><tag k="shop" v="kiosk"/></node>
+</modify><modify>
+<node id="2" version="3" changeset="3" uid="2" user="b" timestamp="2026-02-03T00:00:00Z" lat="11.5" lon="21"/>
+</modify></osmChange>"#,
+    )
+    .unwrap();
+    let db = dir.path().join("n.db");
+    ingest_into(&db, &[snap, diff]);
+    let store = Store::open(&db).unwrap();
+    let edits = store.edits(i64::MIN, i64::MAX).unwrap();
+    let prev = |id: i64, v: i64| {
+        let e = edits
+            .iter()
+            .find(|e| e.eid == id && e.version == v)
+            .unwrap();
+        let p = e.prev.clone().unwrap();
+        (p.version, p.tags, p.pos)
+    };
+    let tags = |kv: &[(&str, &str)]| {
+        hexvigil::store::pack_tags(
+            &kv.iter()
+                .map(|(k, v)| ((*k).to_owned(), (*v).to_owned()))
+                .collect::<Vec<_>>(),
+        )
+    };
+    // Node 1: tagged in the snapshot, so its row gives the tags it lost.
+    assert_eq!(
+        prev(1, 2),
+        (
+            1,
+            tags(&[("amenity", "bench")]),
+            Some((100_000_000, 200_000_000))
+        )
+    );
+    // Node 2: untagged, known to the index only; then tagged, so version 3 finds its row.
+    assert_eq!(
+        prev(2, 2),
+        (1, String::new(), Some((110_000_000, 210_000_000)))
+    );
+    assert_eq!(
+        prev(2, 3),
+        (
+            2,
+            tags(&[("shop", "kiosk")]),
+            Some((115_000_000, 210_000_000))
+        )
+    );
+    let idx = store.node_index().unwrap();
+    assert!(idx.get(1).unwrap().unwrap().has_row);
+    assert!(idx.get(2).unwrap().unwrap().has_row);
+    assert_eq!(idx.get(2).unwrap().unwrap().version, 3);
+}

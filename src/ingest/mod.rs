@@ -569,6 +569,7 @@ pub fn ingest_extended(
             skipped: std::collections::BTreeMap::new(),
             log: BlockBuilder::default(),
             work: HashMap::default(),
+            current: None,
             squares: Squares::default(),
         };
         let root = loop {
@@ -863,6 +864,8 @@ struct Writer<'a, 'b> {
     log: BlockBuilder,
     /// Per changeset: this input's edits.
     work: HashMap<i64, Work>,
+    /// The changeset of the last edit and its work, not yet in `work`.
+    current: Option<(i64, Work)>,
     squares: Squares,
 }
 
@@ -972,17 +975,32 @@ impl Writer<'_, '_> {
         })
     }
 
-    fn stage(&mut self, id: i64, pos: Option<(i32, i32)>, version: i64) -> Result<(), StoreError> {
+    fn stage(
+        &mut self,
+        id: i64,
+        pos: Option<(i32, i32)>,
+        version: i64,
+        has_row: bool,
+    ) -> Result<(), StoreError> {
         if let Some(c) = pos.and_then(|(a, b)| crate::model::Coord::from_e7(a.into(), b.into())) {
-            self.nodes.stage(id, NodeEntry::new(c, version))?;
+            self.nodes
+                .stage(id, NodeEntry::new(c, version).with_row(has_row))?;
         }
         Ok(())
+    }
+
+    /// Moves the current changeset's work into `work`.
+    fn bank_work(&mut self) {
+        if let Some((cs, w)) = self.current.take() {
+            self.work.entry(cs).and_modify(|m| m.merge(w)).or_insert(w);
+        }
     }
 
     /// Writes what this input gathered beyond its elements: the last block of the edit log,
     /// the changesets' work and the first-node squares.
     fn finish(&mut self) -> Result<(), StoreError> {
         self.tx.put_edit_block(self.log.take())?;
+        self.bank_work();
         self.tx.add_changeset_work(&self.work)?;
         self.work.clear();
         self.tx.add_grid_first(&self.squares.map)?;
@@ -1012,7 +1030,7 @@ impl Writer<'_, '_> {
             if el.tags.is_empty() {
                 // An untagged snapshot node: only its position matters. The index keeps the
                 // highest version, so no lookup is needed; this is most of a snapshot.
-                return self.stage(el.id, pos, el.version);
+                return self.stage(el.id, pos, el.version, false);
             }
         }
         // A created version 1 replaces nothing: the lookups of earlier state are skipped (most
@@ -1020,17 +1038,18 @@ impl Writer<'_, '_> {
         // is as new or newer: the element row is kept, the index keeps the highest version,
         // and readers of the edit log count the repeated version once.
         let fresh = op == Some(Op::Create) && el.version == 1 && !deleted;
-        let stored = if fresh {
-            None
-        } else {
-            self.rows.get(t, el.id)?
-        };
         // In a diff, the state a node version replaces may be known only to the index (an
-        // untagged node); it is the newer of the two.
+        // untagged node); it is the newer of the two. The index also says whether the node
+        // has a row at all, which spares the lookup for most nodes (they never carry tags).
         let indexed = if is_node && op.is_some() && !fresh {
             self.nodes.get(el.id)?
         } else {
             None
+        };
+        let stored = if fresh || indexed.is_some_and(|i| !i.has_row) {
+            None
+        } else {
+            self.rows.get(t, el.id)?
         };
         let from_index = |i: NodeEntry| Prev {
             version: i64::from(i.version),
@@ -1081,15 +1100,22 @@ impl Writer<'_, '_> {
                 }),
             });
             self.edits += 1;
-            self.work
-                .entry(el.changeset)
-                .or_insert(Work {
-                    uid: el.uid,
-                    first_ts: el.timestamp,
-                    edits: 0,
-                    deletes: 0,
-                })
-                .add(el.timestamp, op == Op::Delete);
+            // Consecutive edits mostly share a changeset: its work is kept aside until another
+            // one comes.
+            match &mut self.current {
+                Some((cs, w)) if *cs == el.changeset => w.add(el.timestamp, op == Op::Delete),
+                _ => {
+                    self.bank_work();
+                    let mut w = Work {
+                        uid: el.uid,
+                        first_ts: el.timestamp,
+                        edits: 0,
+                        deletes: 0,
+                    };
+                    w.add(el.timestamp, op == Op::Delete);
+                    self.current = Some((el.changeset, w));
+                }
+            }
             if self.log.is_full() {
                 self.tx.put_edit_block(self.log.take())?;
             }
@@ -1109,8 +1135,9 @@ impl Writer<'_, '_> {
         let keep = prev.as_ref().filter(|_| deleted);
         let keep_pos = pos.or_else(|| keep.and_then(|p| Some((p.lat_e7?, p.lon_e7?))));
         if is_node {
-            self.stage(el.id, keep_pos, el.version)?;
-            if !newer || (!has_row && (deleted || el.tags.is_empty())) {
+            let writes_row = newer && (has_row || !(deleted || el.tags.is_empty()));
+            self.stage(el.id, keep_pos, el.version, has_row || writes_row)?;
+            if !writes_row {
                 return Ok(());
             }
         }

@@ -294,6 +294,30 @@ impl Store {
             }
         }
         put_squares(&tx, &squares).map_err(err)?;
+        // Schema 1's index does not mark the nodes that have a row in `elements`.
+        let committed = read_generation(&tx).map_err(err)?;
+        let mut nodes = NodeIndexTx::begin(&self.node_index_prefix(), committed)?;
+        {
+            let idx = self.node_index()?;
+            let mut st = tx
+                .prepare("SELECT eid FROM elements WHERE etype = 0 ORDER BY eid")
+                .map_err(err)?;
+            let mut rows = st.query([]).map_err(err)?;
+            while let Some(r) = rows.next().map_err(err)? {
+                let id: i64 = r.get(0).map_err(err)?;
+                if let Some(e) = idx.get(id)? {
+                    nodes.stage(id, e.with_row(true))?;
+                }
+            }
+        }
+        let prepared = nodes.prepare()?;
+        if let Some(p) = &prepared {
+            tx.execute(
+                "INSERT OR REPLACE INTO meta(key, value) VALUES(?1, ?2)",
+                params![NODES_GENERATION, p.generation().to_string()],
+            )
+            .map_err(err)?;
+        }
         tx.execute_batch(
             "INSERT INTO changeset_work(changeset, uid, first_ts, edits, deletes)
                  SELECT changeset, MIN(uid), MIN(ts), COUNT(*), SUM(op = 2) FROM edits GROUP BY changeset;
@@ -301,7 +325,11 @@ impl Store {
              UPDATE meta SET value = '2' WHERE key = 'schema';",
         )
         .map_err(err)?;
-        tx.commit().map_err(err)
+        tx.commit().map_err(err)?;
+        if let Some(p) = prepared {
+            p.committed();
+        }
+        Ok(())
     }
 
     /// Records generation 0 in a new database; in a database written before the node-location
@@ -342,7 +370,7 @@ impl Store {
                     r.get(3).map_err(|e| self.map_err(e))?,
                 );
                 if let Some(c) = crate::model::Coord::from_e7(lat, lon) {
-                    nodes.stage(id, NodeEntry::new(c, version))?;
+                    nodes.stage(id, NodeEntry::new(c, version).with_row(true))?;
                 }
             }
         }
@@ -628,6 +656,13 @@ impl Work {
         self.first_ts = self.first_ts.min(ts);
         self.edits += 1;
         self.deletes += u64::from(delete);
+    }
+
+    /// Adds another share of the same changeset.
+    pub fn merge(&mut self, other: Self) {
+        self.first_ts = self.first_ts.min(other.first_ts);
+        self.edits += other.edits;
+        self.deletes += other.deletes;
     }
 }
 
@@ -1054,11 +1089,26 @@ mod tests {
     fn a_schema_1_database_is_converted_on_open() {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("v1.db");
+        // Its node-location index, without row marks: node 5 has a row, node 6 does not.
+        let c = crate::model::Coord::from_e7(452_000_100, -336_000_000).unwrap();
+        let mut nodes = NodeIndexTx::begin(&node_index::prefix_for(&path), 0).unwrap();
+        nodes.stage(5, NodeEntry::new(c, 2)).unwrap();
+        let far = crate::model::Coord::from_e7(-100_000_000, 50_000_000).unwrap();
+        nodes.stage(6, NodeEntry::new(far, 1)).unwrap();
+        let prepared = nodes.prepare().unwrap().unwrap();
+        assert_eq!(prepared.generation(), 1);
+        prepared.committed();
         Connection::open(&path)
             .unwrap()
             .execute_batch(
                 "CREATE TABLE meta(key TEXT PRIMARY KEY, value TEXT NOT NULL);
-                 INSERT INTO meta VALUES('schema', '1'), ('nodes_generation', '0');
+                 INSERT INTO meta VALUES('schema', '1'), ('nodes_generation', '1');
+                 CREATE TABLE elements(
+                    etype INTEGER NOT NULL, eid INTEGER NOT NULL, version INTEGER NOT NULL, ts INTEGER NOT NULL,
+                    visible INTEGER NOT NULL, lat_e7 INTEGER, lon_e7 INTEGER, tags TEXT NOT NULL, refs BLOB,
+                    PRIMARY KEY(etype, eid)) WITHOUT ROWID;
+                 INSERT INTO elements VALUES(0, 5, 2, 2000, 1, 452000100, -336000000,
+                    'a' || char(31) || 'b' || char(30), NULL);
                  CREATE TABLE edits(
                     etype INTEGER NOT NULL, eid INTEGER NOT NULL, version INTEGER NOT NULL,
                     op INTEGER NOT NULL, changeset INTEGER NOT NULL, uid INTEGER NOT NULL, user TEXT NOT NULL,
@@ -1148,13 +1198,21 @@ mod tests {
             ]
         );
         assert_eq!(s.mapper_work(9).unwrap(), vec![(1000, 1, 0), (2000, 2, 1)]);
+        // Node 5 from its creation in the edits; node 6, never seen created, from the start.
         let squares = s.grid_first().unwrap();
-        assert_eq!(squares.len(), 1);
+        assert_eq!(squares.len(), 2);
         assert_eq!(
             squares.get(&grid_square(452_000_000, -336_000_000)),
             Some(&1000)
         );
+        assert_eq!(
+            squares.get(&grid_square(-100_000_000, 50_000_000)),
+            Some(&i64::MIN)
+        );
         assert_eq!(s.meta("schema").unwrap().as_deref(), Some("2"));
+        let idx = s.node_index().unwrap();
+        assert!(idx.get(5).unwrap().unwrap().has_row);
+        assert!(!idx.get(6).unwrap().unwrap().has_row);
         let old: i64 = s
             .conn()
             .query_row(
