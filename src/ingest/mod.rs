@@ -869,28 +869,77 @@ struct Writer<'a, 'b> {
     squares: Squares,
 }
 
-/// First-node times of `grid_first` squares found in one input, with the last square marked
-/// remembered: consecutive nodes of a file are often in the same square.
-#[derive(Default)]
+/// First-node times of `grid_first` squares found in one input, in tiles of 64 × 64 squares
+/// allocated when first touched: marking a square is an array write, without hashing (a
+/// hash map here was a tenth of an ingest's time on scattered creations).
 struct Squares {
-    map: HashMap<i64, i64>,
-    last: Option<(i64, i64)>,
+    /// Row-major tiles of the world's 18 000 × 36 000 squares; `i64::MAX` is unmarked.
+    tiles: Vec<Option<Box<[i64; TILE * TILE]>>>,
+    allocated: usize,
+}
+
+/// Squares per tile side.
+const TILE: usize = 64;
+/// Squares per world row and column ([`grid_square`]: 0.01° from 90° S and 180° W).
+const SQUARE_ROWS: usize = 18_001;
+const SQUARE_COLS: usize = 36_001;
+const TILE_COLS: usize = SQUARE_COLS.div_ceil(TILE);
+/// Tiles held before they are written out (4 096 tiles are 128 MiB).
+const MAX_TILES: usize = 4_096;
+
+impl Default for Squares {
+    fn default() -> Self {
+        let mut tiles = Vec::new();
+        tiles.resize_with(SQUARE_ROWS.div_ceil(TILE) * TILE_COLS, || None);
+        Self {
+            tiles,
+            allocated: 0,
+        }
+    }
 }
 
 impl Squares {
     fn mark(&mut self, (lat, lon): (i32, i32), t: i64) {
         let sq = grid_square(lat, lon);
-        if matches!(self.last, Some((s, v)) if s == sq && v <= t) {
+        let (Ok(row), Ok(col)) = (usize::try_from(sq >> 16), usize::try_from(sq & 0xFFFF)) else {
             return;
-        }
-        let v = self.map.entry(sq).or_insert(t);
+        };
+        let Some(slot) = self.tiles.get_mut((row / TILE) * TILE_COLS + col / TILE) else {
+            return;
+        };
+        let tile = slot.get_or_insert_with(|| {
+            self.allocated += 1;
+            Box::new([i64::MAX; TILE * TILE])
+        });
+        let v = &mut tile[(row % TILE) * TILE + col % TILE];
         *v = (*v).min(t);
-        self.last = Some((sq, *v));
+    }
+
+    fn is_large(&self) -> bool {
+        self.allocated >= MAX_TILES
+    }
+
+    /// The marked squares and their times; the tiles are emptied.
+    fn take(&mut self) -> Vec<(i64, i64)> {
+        let mut out = Vec::new();
+        for (i, slot) in self.tiles.iter_mut().enumerate() {
+            if let Some(tile) = slot.take() {
+                let (tr, tc) = (i / TILE_COLS, i % TILE_COLS);
+                for (j, &v) in tile.iter().enumerate() {
+                    if v != i64::MAX {
+                        let row = (tr * TILE + j / TILE) as i64;
+                        let col = (tc * TILE + j % TILE) as i64;
+                        out.push((row * 65_536 + col, v));
+                    }
+                }
+            }
+        }
+        self.allocated = 0;
+        out
     }
 }
 
-/// Changesets or squares gathered before they are written, bounding the writer's memory on a
-/// huge input.
+/// Changesets gathered before they are written, bounding the writer's memory on a huge input.
 const MAX_PENDING: usize = 1 << 20;
 
 fn refs_of(el: &RawElement) -> Option<Vec<u8>> {
@@ -923,9 +972,8 @@ impl Writer<'_, '_> {
                     }
                 }
                 self.element(op, &el)?;
-                if self.squares.map.len() >= MAX_PENDING {
-                    self.tx.add_grid_first(&self.squares.map)?;
-                    self.squares = Squares::default();
+                if self.squares.is_large() {
+                    self.tx.add_grid_first(&self.squares.take())?;
                 }
             }
             Item::Skipped(reason) => *self.skipped.entry(reason).or_default() += 1,
@@ -1003,8 +1051,7 @@ impl Writer<'_, '_> {
         self.bank_work();
         self.tx.add_changeset_work(&self.work)?;
         self.work.clear();
-        self.tx.add_grid_first(&self.squares.map)?;
-        self.squares = Squares::default();
+        self.tx.add_grid_first(&self.squares.take())?;
         Ok(())
     }
 
@@ -1166,5 +1213,37 @@ impl Writer<'_, '_> {
                 refs.as_deref(),
             )
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn squares_keep_the_earliest_time_of_each_square() {
+        let mut sq = Squares::default();
+        // Corners of the world and two marks in one square; Source for the corners: the
+        // valid range of OSM coordinates, ±90° and ±180° (OSM wiki "Node").
+        let points = [
+            ((-900_000_000, -1_800_000_000), 5),
+            ((900_000_000, 1_800_000_000), 6),
+            ((452_000_000, -336_000_000), 9),
+            ((452_000_500, -335_999_500), 7),
+            ((452_000_000, -336_000_000), 8),
+        ];
+        for (p, t) in points {
+            sq.mark(p, t);
+        }
+        let mut got = sq.take();
+        got.sort_unstable();
+        let mut want = vec![
+            (grid_square(-900_000_000, -1_800_000_000), 5),
+            (grid_square(900_000_000, 1_800_000_000), 6),
+            (grid_square(452_000_000, -336_000_000), 7),
+        ];
+        want.sort_unstable();
+        assert_eq!(got, want);
+        assert!(sq.take().is_empty(), "taking empties the tiles");
     }
 }

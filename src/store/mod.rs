@@ -293,6 +293,7 @@ impl Store {
                 squares.insert(grid_square(n.coord.lat_e7(), n.coord.lon_e7()), i64::MIN);
             }
         }
+        let squares: Vec<(i64, i64)> = squares.into_iter().collect();
         put_squares(&tx, &squares).map_err(err)?;
         // Schema 1's index does not mark the nodes that have a row in `elements`.
         let committed = read_generation(&tx).map_err(err)?;
@@ -625,11 +626,8 @@ fn put_block(conn: &Connection, block: Option<edit_log::Block>) -> Result<(), ru
     Ok(())
 }
 
-fn put_squares<S: std::hash::BuildHasher>(
-    conn: &Connection,
-    squares: &std::collections::HashMap<i64, i64, S>,
-) -> Result<(), rusqlite::Error> {
-    let mut sorted: Vec<(i64, i64)> = squares.iter().map(|(&k, &v)| (k, v)).collect();
+fn put_squares(conn: &Connection, squares: &[(i64, i64)]) -> Result<(), rusqlite::Error> {
+    let mut sorted = squares.to_vec();
     sorted.sort_unstable();
     let mut st = conn.prepare_cached(
         "INSERT INTO grid_first(square, first_ts) VALUES(?1, ?2)
@@ -958,11 +956,11 @@ impl IngestTx<'_> {
         Ok(())
     }
 
-    /// Lowers the first-node times of `grid_first` squares ([`grid_square`]).
+    /// Lowers the first-node times of `grid_first` squares ([`grid_square`]): (square, time).
     ///
     /// # Errors
     /// On SQLite failure.
-    pub fn add_grid_first(&self, squares: &foldhash::HashMap<i64, i64>) -> Result<(), StoreError> {
+    pub fn add_grid_first(&self, squares: &[(i64, i64)]) -> Result<(), StoreError> {
         put_squares(&self.tx, squares).map_err(|e| self.err(e))
     }
 
