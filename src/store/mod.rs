@@ -488,8 +488,7 @@ impl Store {
         self.for_each_edit_block(from, to, |data| {
             edit_log::decode(data, |t| t >= from && t < to, &mut out)
         })?;
-        edit_log::dedup_sorted(&mut out);
-        Ok(out)
+        Ok(edit_log::dedup_sorted(out))
     }
 
     /// Calls `f` with the payload of each block of the edit log whose time span meets
