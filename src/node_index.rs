@@ -561,6 +561,9 @@ pub fn remove_other_generations(prefix: &Path, keep: u64) -> Result<(), NodeInde
     Ok(())
 }
 
+/// Entries of `NodeIndexTx::tail` per fence post.
+const FENCE: usize = 128;
+
 /// The changes one ingest makes to the index, staged until [`NodeIndexTx::prepare`].
 ///
 /// Lookups see the committed index and everything staged so far. Staged entries live in a hash
@@ -575,6 +578,10 @@ pub struct NodeIndexTx {
     runs: Vec<NodeIndex>,
     /// Entries staged in increasing id order (a sorted snapshot): kept without hashing.
     tail: Vec<(i64, NodeEntry)>,
+    /// Every [`FENCE`]th id of `tail`: a lookup searches this small array first, then one
+    /// stretch of `tail`, instead of all of it (a binary search over millions of entries
+    /// misses the cache at almost every step).
+    fence: Vec<i64>,
     /// Entries staged out of order, and repeats; later than `tail` for the same id.
     overlay: foldhash::HashMap<i64, NodeEntry>,
     /// The highest id in `overlay` (an id above it cannot be there).
@@ -610,6 +617,7 @@ impl NodeIndexTx {
             base_is_temp: false,
             runs: Vec::new(),
             tail: Vec::new(),
+            fence: Vec::new(),
             overlay: foldhash::HashMap::default(),
             overlay_max: i64::MIN,
             run_entries: run_entries.max(1),
@@ -644,6 +652,9 @@ impl NodeIndexTx {
         if self.tail.last().is_none_or(|l| id > l.0)
             && (id > self.overlay_max || !self.overlay.contains_key(&id))
         {
+            if self.tail.len() % FENCE == 0 {
+                self.fence.push(id);
+            }
             self.tail.push((id, entry));
             if self.tail.len() >= self.run_entries {
                 self.spill()?;
@@ -684,6 +695,7 @@ impl NodeIndexTx {
     /// merges the runs into a new temporary base when there are too many.
     fn spill(&mut self) -> Result<(), NodeIndexError> {
         let tail = std::mem::take(&mut self.tail);
+        self.fence.clear();
         self.write_run(tail)?;
         let mut sorted: Vec<(i64, NodeEntry)> = self.overlay.drain().collect();
         self.overlay_max = i64::MIN;
@@ -723,11 +735,15 @@ impl NodeIndexTx {
                 best = Some(best.map_or(e, |b| b.newer(e)));
             }
         }
-        let staged = self
-            .tail
-            .binary_search_by_key(&id, |t| t.0)
-            .ok()
-            .map(|i| self.tail[i].1);
+        let stretch = self.fence.partition_point(|&f| f <= id).checked_sub(1);
+        let staged = stretch.and_then(|k| {
+            let part = self
+                .tail
+                .get(k * FENCE..self.tail.len().min((k + 1) * FENCE))?;
+            part.binary_search_by_key(&id, |t| t.0)
+                .ok()
+                .map(|i| part[i].1)
+        });
         for e in [staged, self.overlay.get(&id).copied()]
             .into_iter()
             .flatten()
@@ -758,6 +774,7 @@ impl NodeIndexTx {
         for r in &self.runs {
             sources.push(Box::new(r.iter()?));
         }
+        self.fence.clear();
         sources.push(Box::new(std::mem::take(&mut self.tail).into_iter().map(Ok)));
         sources.push(Box::new(overlay.into_iter().map(Ok)));
         merge_into(sources, &mut w)?;
