@@ -5,8 +5,15 @@
 //! they close, so memory does not grow with the file. Broken XML or a missing/invalid id is
 //! fatal for the file; an odd but valid element (a node without coordinates in a snapshot) is
 //! skipped and counted.
+//!
+//! Speed: most tags are in the plain form OSM writers produce (unique attributes, values without
+//! entities or line breaks, integers, coordinates with at most 7 decimals, `YYYY-MM-DDTHH:MM:SSZ`
+//! times). A fast path reads those from the raw attribute text without copying; anything else,
+//! including every error, goes to the general path, which reads the tag again and gives the
+//! result and the message it always gave. No single tag or text run longer than
+//! [`MAX_EVENT_BYTES`] is held in memory.
 
-use std::io::BufRead;
+use std::io::{BufRead, Read};
 
 use quick_xml::events::{BytesStart, Event};
 use quick_xml::Reader;
@@ -22,6 +29,12 @@ pub const MAX_TAGS: usize = 5_000;
 pub const MAX_WAY_NODES: usize = 2_000;
 /// Most members in one relation (the OSM API allows 32 000).
 pub const MAX_MEMBERS: usize = 32_000;
+/// Longest single XML tag (from `<` to `>`, attributes included), text run or comment read, in
+/// bytes; a longer one is refused with an error at its start, so memory stays bounded. A valid
+/// element's start tag is a few kilobytes at most (10 attributes and a tag value of
+/// [`MAX_TAG_BYTES`], even with every character written as an entity); whitespace between tags
+/// does not count.
+pub const MAX_EVENT_BYTES: usize = 1 << 20;
 
 /// What went wrong at a place in the XML text. The caller adds the file name and turns the
 /// byte offset into a line and column.
@@ -63,8 +76,17 @@ pub struct RawElement {
     pub members: Vec<(ElementType, i64)>,
 }
 
+/// Keeps the strings of `tags` for reuse, a bounded number of them.
+fn recycle(tags: &mut Vec<(String, String)>, spare: &mut Vec<(String, String)>) {
+    const KEEP: usize = 256;
+    let room = KEEP.saturating_sub(spare.len()).min(tags.len());
+    spare.extend(tags.drain(..room));
+    tags.clear();
+}
+
 impl RawElement {
-    fn clear(&mut self) {
+    fn clear(&mut self, spare: &mut Vec<(String, String)>) {
+        recycle(&mut self.tags, spare);
         self.etype = None;
         self.id = 0;
         self.version = 0;
@@ -104,7 +126,8 @@ pub struct RawChangeset {
 }
 
 impl RawChangeset {
-    fn clear(&mut self) {
+    fn clear(&mut self, spare: &mut Vec<(String, String)>) {
+        recycle(&mut self.tags, spare);
         *self = Self {
             user: std::mem::take(&mut self.user),
             tags: std::mem::take(&mut self.tags),
@@ -155,11 +178,13 @@ pub enum Root {
 /// [`ReadError::Parse`] for malformed XML, a wrong root, a missing or invalid id, version or
 /// coordinate attribute, or a size limit exceeded; [`ReadError::Sink`] when the sink fails.
 pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, ReadError> {
-    let mut reader = Reader::from_reader(input);
+    let mut reader = Reader::from_reader(EventCap::new(input));
     reader.config_mut().trim_text(true);
     let mut buf = Vec::with_capacity(4096);
     let mut el = RawElement::default();
     let mut cs = RawChangeset::default();
+    // Tag strings of earlier elements, reused so that a tag costs no allocation.
+    let mut spare: Vec<(String, String)> = Vec::new();
     let mut root: Option<Root> = None;
     let mut op: Option<Op> = None;
     // What is open below the root: an element or a changeset whose children we collect.
@@ -169,7 +194,18 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
 
     loop {
         let before = reader.buffer_position();
-        let event = reader.read_event_into(&mut buf).map_err(|e| {
+        reader.get_mut().start_event();
+        let event = reader.read_event_into(&mut buf);
+        if let Some(skipped) = reader.get_ref().too_long() {
+            return Err(ReadError::Parse(ParseError {
+                offset: before + skipped,
+                message: format!(
+                    "an XML tag or text run longer than {MAX_EVENT_BYTES} bytes; no valid OSM \
+                     element needs one so long"
+                ),
+            }));
+        }
+        let event = event.map_err(|e| {
             ReadError::Parse(ParseError {
                 offset: reader.error_position(),
                 message: format!("malformed XML: {e}"),
@@ -215,7 +251,24 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                     }
                     Some(r) => {
                         if open_element || open_changeset {
-                            child(e, name, &mut el, &mut cs, open_changeset).map_err(perr)?;
+                            let tags = if open_changeset {
+                                &mut cs.tags
+                            } else {
+                                &mut el.tags
+                            };
+                            if child_fast(
+                                e,
+                                name,
+                                open_changeset,
+                                &mut el.refs,
+                                &mut el.members,
+                                tags,
+                                &mut spare,
+                            )
+                            .is_err()
+                            {
+                                child(e, name, &mut el, &mut cs, open_changeset).map_err(perr)?;
+                            }
                             continue;
                         }
                         match (r, name) {
@@ -229,9 +282,13 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                                         String::from_utf8_lossy(name)
                                     )));
                                 }
-                                el.clear();
+                                el.clear(&mut spare);
                                 el.etype = ElementType::from_name(name);
-                                element_attrs(e, &mut el).map_err(perr)?;
+                                if element_attrs_fast(e, &mut el).is_err() {
+                                    el.clear(&mut spare);
+                                    el.etype = ElementType::from_name(name);
+                                    element_attrs(e, &mut el).map_err(perr)?;
+                                }
                                 if empty {
                                     deliver(op, &el, sink)?;
                                 } else {
@@ -239,7 +296,7 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                                 }
                             }
                             (Root::Osm, b"changeset") => {
-                                cs.clear();
+                                cs.clear(&mut spare);
                                 changeset_attrs(e, &mut cs).map_err(perr)?;
                                 if empty {
                                     sink.changeset(&cs).map_err(ReadError::Sink)?;
@@ -298,6 +355,111 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
     })
 }
 
+/// The reader's input: buffers `inner` and counts the bytes of the XML event being read, so
+/// that one longer than [`MAX_EVENT_BYTES`] is refused (with an I/O error that the reader
+/// passes on) before it is buffered whole. Whitespace before the event does not count: the
+/// XML reader skips it without keeping it.
+struct EventCap<R> {
+    inner: R,
+    buf: Box<[u8]>,
+    start: usize,
+    end: usize,
+    /// Still in the whitespace before the event.
+    leading: bool,
+    /// Whitespace bytes consumed before the event.
+    skipped: u64,
+    /// Bytes of the event consumed so far.
+    counted: u64,
+}
+
+impl<R: Read> EventCap<R> {
+    /// Large enough that a buffer refill is rare against the per-event cost.
+    const CAPACITY: usize = 1 << 17;
+
+    fn new(inner: R) -> Self {
+        Self {
+            inner,
+            buf: vec![0; Self::CAPACITY].into_boxed_slice(),
+            start: 0,
+            end: 0,
+            leading: true,
+            skipped: 0,
+            counted: 0,
+        }
+    }
+
+    /// Called before each event is read.
+    fn start_event(&mut self) {
+        self.leading = true;
+        self.skipped = 0;
+        self.counted = 0;
+    }
+
+    /// The whitespace skipped before the event when the event is longer than the limit.
+    fn too_long(&self) -> Option<u64> {
+        (self.counted > MAX_EVENT_BYTES as u64).then_some(self.skipped)
+    }
+}
+
+impl<R: Read> Read for EventCap<R> {
+    fn read(&mut self, out: &mut [u8]) -> std::io::Result<usize> {
+        let n = {
+            let available = self.fill_buf()?;
+            let n = available.len().min(out.len());
+            out[..n].copy_from_slice(&available[..n]);
+            n
+        };
+        self.consume(n);
+        Ok(n)
+    }
+}
+
+impl<R: Read> BufRead for EventCap<R> {
+    fn fill_buf(&mut self) -> std::io::Result<&[u8]> {
+        if self.counted > MAX_EVENT_BYTES as u64 {
+            return Err(std::io::Error::other("XML event too long"));
+        }
+        if self.start == self.end {
+            self.start = 0;
+            self.end = 0;
+            self.end = loop {
+                match self.inner.read(&mut self.buf) {
+                    Ok(n) => break n,
+                    Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                    Err(e) => return Err(e),
+                }
+            };
+        }
+        Ok(&self.buf[self.start..self.end])
+    }
+
+    fn consume(&mut self, n: usize) {
+        let n = n.min(self.end - self.start);
+        let taken = &self.buf[self.start..self.start + n];
+        let event_bytes = if self.leading {
+            // The same whitespace the XML reader skips between tags.
+            match taken
+                .iter()
+                .position(|b| !matches!(b, b' ' | b'\t' | b'\r' | b'\n'))
+            {
+                Some(i) => {
+                    self.leading = false;
+                    self.skipped += i as u64;
+                    n - i
+                }
+                None => {
+                    self.skipped += n as u64;
+                    0
+                }
+            }
+        } else {
+            n
+        };
+        self.counted += event_bytes as u64;
+        self.start += n;
+    }
+}
+
 /// Hands a complete element to the sink, or counts it as skipped when it is odd but valid.
 fn deliver(op: Option<Op>, el: &RawElement, sink: &mut impl OsmSink) -> Result<(), ReadError> {
     let deleted = op == Some(Op::Delete) || !el.visible;
@@ -306,6 +468,224 @@ fn deliver(op: Option<Op>, el: &RawElement, sink: &mut impl OsmSink) -> Result<(
         return Ok(());
     }
     sink.element(op, el).map_err(ReadError::Sink)
+}
+
+/// The fast path cannot take this tag: the general path reads it again.
+#[derive(Debug)]
+struct Fallback;
+
+/// Calls `f` with each attribute's key and value when every attribute of `e` is well formed,
+/// its key is not repeated and its value needs no normalization (no entity, tab or line break),
+/// which is what the general path's checked iteration and `normalized_value` would then give.
+fn plain_attrs<'a>(
+    e: &'a BytesStart<'_>,
+    mut f: impl FnMut(&'a str, &'a str) -> Result<(), Fallback>,
+) -> Result<(), Fallback> {
+    // The duplicate check the general path's iteration makes, without its allocation.
+    let mut seen = [""; 16];
+    let mut attrs = e.attributes();
+    attrs.with_checks(false);
+    for (n, a) in attrs.enumerate() {
+        let a = a.map_err(|_| Fallback)?;
+        let key = a.key.into_inner();
+        if n == seen.len() || seen[..n].contains(&key) {
+            return Err(Fallback);
+        }
+        seen[n] = key;
+        let std::borrow::Cow::Borrowed(value) = a.value else {
+            return Err(Fallback);
+        };
+        if value
+            .bytes()
+            .any(|b| matches!(b, b'&' | b'\t' | b'\r' | b'\n'))
+        {
+            return Err(Fallback);
+        }
+        f(key, value)?;
+    }
+    Ok(())
+}
+
+/// An integer as [`parse_i64`] reads it, without building its error message.
+fn int(v: &str) -> Result<i64, Fallback> {
+    let b = v.as_bytes();
+    let (negative, digits) = match b.split_first() {
+        Some((b'-', rest)) => (true, rest),
+        _ => (false, b),
+    };
+    // Up to 18 digits cannot overflow; anything else is read by the standard parser.
+    if digits.is_empty() || digits.len() > 18 {
+        return v.trim().parse().map_err(|_| Fallback);
+    }
+    let mut n = 0i64;
+    for &c in digits {
+        let d = c.wrapping_sub(b'0');
+        if d > 9 {
+            return v.trim().parse().map_err(|_| Fallback);
+        }
+        n = n * 10 + i64::from(d);
+    }
+    Ok(if negative { -n } else { n })
+}
+
+/// A coordinate written `-?D{1,3}(.D{1,7})?` in 1e-7 degree units, exactly: for these the
+/// general path's `f64` parse, `* 1e7` and rounding give the same integer, since the product is
+/// within a few units of 2^-52 relative of an integer below 2^31. Other forms (exponents, more
+/// decimals, a `+` sign, spaces) go to the general path.
+fn e7(v: &str) -> Result<i64, Fallback> {
+    const SCALE: [i64; 8] = [
+        10_000_000, 1_000_000, 100_000, 10_000, 1_000, 100, 10, 1,
+    ];
+    let b = v.as_bytes();
+    let (negative, rest) = match b.split_first() {
+        Some((b'-', rest)) => (true, rest),
+        _ => (false, b),
+    };
+    let (whole, fraction) = match rest.iter().position(|&c| c == b'.') {
+        Some(i) => (&rest[..i], &rest[i + 1..]),
+        None => (rest, &rest[rest.len()..]),
+    };
+    if whole.is_empty()
+        || whole.len() > 3
+        || fraction.len() > 7
+        || (fraction.is_empty() && whole.len() < rest.len())
+    {
+        return Err(Fallback);
+    }
+    let mut n = 0i64;
+    for &c in whole.iter().chain(fraction) {
+        let d = c.wrapping_sub(b'0');
+        if d > 9 {
+            return Err(Fallback);
+        }
+        n = n * 10 + i64::from(d);
+    }
+    n *= SCALE[fraction.len()];
+    Ok(if negative { -n } else { n })
+}
+
+/// Whether [`check_len`] accepts `v`, without building its message.
+fn plain_len_ok(v: &str) -> bool {
+    // The control characters check_len refuses are all ASCII, so bytes can be looked at.
+    v.len() <= MAX_TAG_BYTES
+        && !v
+            .bytes()
+            .any(|b| b < b' ' && !matches!(b, b'\t' | b'\n' | b'\r'))
+}
+
+/// [`element_attrs`] for plain tags; on [`Fallback`] `el` is to be cleared and read again.
+fn element_attrs_fast(e: &BytesStart<'_>, el: &mut RawElement) -> Result<(), Fallback> {
+    let mut has_id = false;
+    let (mut lat, mut lon) = (None, None);
+    plain_attrs(e, |key, v| {
+        match key.as_bytes() {
+            b"id" => {
+                el.id = int(v)?;
+                has_id = true;
+            }
+            b"version" => el.version = int(v)?,
+            b"changeset" => el.changeset = int(v)?,
+            b"uid" => el.uid = int(v)?,
+            b"user" => {
+                if !plain_len_ok(v) {
+                    return Err(Fallback);
+                }
+                el.user.push_str(v);
+            }
+            b"timestamp" => el.timestamp = parse_timestamp(v).ok_or(Fallback)?,
+            b"visible" => el.visible = v != "false",
+            b"lat" => lat = Some(e7(v)?),
+            b"lon" => lon = Some(e7(v)?),
+            _ => {}
+        }
+        Ok(())
+    })?;
+    if !has_id {
+        return Err(Fallback);
+    }
+    if let (Some(la), Some(lo)) = (lat, lon) {
+        el.coord = Some(Coord::from_e7(la, lo).ok_or(Fallback)?);
+    }
+    Ok(())
+}
+
+/// [`child`] for plain tags; changes nothing when it returns [`Fallback`].
+fn child_fast(
+    e: &BytesStart<'_>,
+    name: &[u8],
+    in_changeset: bool,
+    refs: &mut Vec<i64>,
+    members: &mut Vec<(ElementType, i64)>,
+    tags: &mut Vec<(String, String)>,
+    spare: &mut Vec<(String, String)>,
+) -> Result<(), Fallback> {
+    match name {
+        b"tag" => {
+            let (mut k, mut v) = (None, None);
+            plain_attrs(e, |key, value| {
+                match key {
+                    "k" => k = Some(value),
+                    "v" => v = Some(value),
+                    _ => {}
+                }
+                Ok(())
+            })?;
+            let (Some(k), Some(v)) = (k, v) else {
+                return Err(Fallback);
+            };
+            if !plain_len_ok(k) || !plain_len_ok(v) || tags.len() >= MAX_TAGS {
+                return Err(Fallback);
+            }
+            let (mut key, mut value) = spare.pop().unwrap_or_default();
+            key.clear();
+            key.push_str(k);
+            value.clear();
+            value.push_str(v);
+            tags.push((key, value));
+        }
+        b"nd" if !in_changeset => {
+            // As the general path: the first ref counts, and what follows it is not looked at.
+            let r = e
+                .try_get_attribute("ref")
+                .map_err(|_| Fallback)?
+                .ok_or(Fallback)?;
+            let std::borrow::Cow::Borrowed(value) = r.value else {
+                return Err(Fallback);
+            };
+            if value
+                .bytes()
+                .any(|b| matches!(b, b'&' | b'\t' | b'\r' | b'\n'))
+                || refs.len() >= MAX_WAY_NODES
+            {
+                return Err(Fallback);
+            }
+            refs.push(int(value)?);
+        }
+        b"member" if !in_changeset => {
+            let (mut t, mut r) = (None, None);
+            plain_attrs(e, |key, value| {
+                match key {
+                    "type" => t = Some(value),
+                    "ref" => r = Some(int(value)?),
+                    _ => {}
+                }
+                Ok(())
+            })?;
+            let (Some(t), Some(r)) = (t, r) else {
+                return Err(Fallback);
+            };
+            let t = ElementType::from_name(t.as_bytes()).ok_or(Fallback)?;
+            if members.len() >= MAX_MEMBERS {
+                return Err(Fallback);
+            }
+            if t != ElementType::Relation {
+                members.push((t, r));
+            }
+        }
+        // Ignored children cost nothing to read again.
+        _ => return Err(Fallback),
+    }
+    Ok(())
 }
 
 fn attr_str<'a>(
@@ -567,9 +947,8 @@ pub fn parse_timestamp(s: &str) -> Option<i64> {
         if h > 23 || mi > 59 || se > 60 {
             return None;
         }
-        let days = date
-            .signed_duration_since(chrono::NaiveDate::from_ymd_opt(1970, 1, 1)?)
-            .num_days();
+        // 1970-01-01 is day 719 163 counted from 0001-01-01 as day 1.
+        let days = i64::from(chrono::Datelike::num_days_from_ce(&date)) - 719_163;
         return Some(days * 86_400 + h * 3600 + mi * 60 + se);
     }
     chrono::DateTime::parse_from_rfc3339(s)
@@ -703,3 +1082,4 @@ mod tests {
         .contains("at most"));
     }
 }
+
