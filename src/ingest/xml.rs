@@ -414,25 +414,35 @@ impl<R: Read> Read for EventCap<R> {
     }
 }
 
+impl<R: Read> EventCap<R> {
+    #[cold]
+    fn refill(&mut self) -> std::io::Result<()> {
+        self.start = 0;
+        self.end = 0;
+        self.end = loop {
+            match self.inner.read(&mut self.buf) {
+                Ok(n) => break n,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(e) => return Err(e),
+            }
+        };
+        Ok(())
+    }
+}
+
 impl<R: Read> BufRead for EventCap<R> {
+    #[inline]
     fn fill_buf(&mut self) -> std::io::Result<&[u8]> {
         if self.counted > MAX_EVENT_BYTES as u64 {
             return Err(std::io::Error::other("XML event too long"));
         }
         if self.start == self.end {
-            self.start = 0;
-            self.end = 0;
-            self.end = loop {
-                match self.inner.read(&mut self.buf) {
-                    Ok(n) => break n,
-                    Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
-                    Err(e) => return Err(e),
-                }
-            };
+            self.refill()?;
         }
         Ok(&self.buf[self.start..self.end])
     }
 
+    #[inline]
     fn consume(&mut self, n: usize) {
         let n = n.min(self.end - self.start);
         let taken = &self.buf[self.start..self.start + n];
@@ -474,36 +484,81 @@ fn deliver(op: Option<Op>, el: &RawElement, sink: &mut impl OsmSink) -> Result<(
 #[derive(Debug)]
 struct Fallback;
 
-/// Calls `f` with each attribute's key and value when every attribute of `e` is well formed,
-/// its key is not repeated and its value needs no normalization (no entity, tab or line break),
-/// which is what the general path's checked iteration and `normalized_value` would then give.
+/// [`STOP`] bit: a byte that ends an attribute key (`=` or whitespace).
+const KEY_END: u8 = 1;
+/// [`STOP`] bit: a byte that ends a plain attribute value or makes it not plain (a quote, `&`,
+/// tab or line break).
+const VALUE_END: u8 = 2;
+/// Byte classes of [`plain_attrs`], looked up instead of compared one by one.
+const STOP: [u8; 256] = {
+    let mut t = [0u8; 256];
+    t[b'=' as usize] = KEY_END;
+    t[b' ' as usize] = KEY_END;
+    t[b'\t' as usize] = KEY_END | VALUE_END;
+    t[b'\r' as usize] = KEY_END | VALUE_END;
+    t[b'\n' as usize] = KEY_END | VALUE_END;
+    t[b'"' as usize] = VALUE_END;
+    t[b'\'' as usize] = VALUE_END;
+    t[b'&' as usize] = VALUE_END;
+    t
+};
+
+/// Calls `f` with each attribute's key and value when every attribute of `e` is written
+/// `key="value"` or `key='value'` (no space around `=`), its key is not repeated and its value
+/// needs no normalization (no entity, tab or line break). On such tags quick-xml's attribute
+/// iteration (the general path) finds the same keys and values and no error; this scan is the
+/// same walk without its per-tag allocation, duplicate bookkeeping and value copies.
 fn plain_attrs<'a>(
     e: &'a BytesStart<'_>,
     mut f: impl FnMut(&'a str, &'a str) -> Result<(), Fallback>,
 ) -> Result<(), Fallback> {
-    // The duplicate check the general path's iteration makes, without its allocation.
+    let raw = e.attributes_raw();
+    let b = raw.as_bytes();
+    let space = |c: u8| matches!(c, b' ' | b'\t' | b'\r' | b'\n');
     let mut seen = [""; 16];
-    let mut attrs = e.attributes();
-    attrs.with_checks(false);
-    for (n, a) in attrs.enumerate() {
-        let a = a.map_err(|_| Fallback)?;
-        let key = a.key.into_inner();
+    let mut n = 0;
+    let mut i = 0;
+    loop {
+        while i < b.len() && space(b[i]) {
+            i += 1;
+        }
+        if i == b.len() {
+            return Ok(());
+        }
+        let key_start = i;
+        while i < b.len() && STOP[usize::from(b[i])] & KEY_END == 0 {
+            i += 1;
+        }
+        if i == key_start || b.get(i) != Some(&b'=') {
+            return Err(Fallback);
+        }
+        let key = raw.get(key_start..i).ok_or(Fallback)?;
+        let quote = match b.get(i + 1) {
+            Some(&q @ (b'"' | b'\'')) => q,
+            _ => return Err(Fallback),
+        };
+        i += 2;
+        let value_start = i;
+        loop {
+            while i < b.len() && STOP[usize::from(b[i])] & VALUE_END == 0 {
+                i += 1;
+            }
+            match b.get(i) {
+                Some(&c) if c == quote => break,
+                // The other quote is part of the value.
+                Some(b'"' | b'\'') => i += 1,
+                _ => return Err(Fallback),
+            }
+        }
+        let value = raw.get(value_start..i).ok_or(Fallback)?;
+        i += 1;
         if n == seen.len() || seen[..n].contains(&key) {
             return Err(Fallback);
         }
         seen[n] = key;
-        let std::borrow::Cow::Borrowed(value) = a.value else {
-            return Err(Fallback);
-        };
-        if value
-            .bytes()
-            .any(|b| matches!(b, b'&' | b'\t' | b'\r' | b'\n'))
-        {
-            return Err(Fallback);
-        }
+        n += 1;
         f(key, value)?;
     }
-    Ok(())
 }
 
 /// An integer as [`parse_i64`] reads it, without building its error message.
@@ -644,22 +699,19 @@ fn child_fast(
             tags.push((key, value));
         }
         b"nd" if !in_changeset => {
-            // As the general path: the first ref counts, and what follows it is not looked at.
-            let r = e
-                .try_get_attribute("ref")
-                .map_err(|_| Fallback)?
-                .ok_or(Fallback)?;
-            let std::borrow::Cow::Borrowed(value) = r.value else {
-                return Err(Fallback);
-            };
-            if value
-                .bytes()
-                .any(|b| matches!(b, b'&' | b'\t' | b'\r' | b'\n'))
-                || refs.len() >= MAX_WAY_NODES
-            {
+            // A plain tag has one ref; the general path takes the first of several.
+            let mut r = None;
+            plain_attrs(e, |key, value| {
+                if key == "ref" {
+                    r = Some(int(value)?);
+                }
+                Ok(())
+            })?;
+            let r = r.ok_or(Fallback)?;
+            if refs.len() >= MAX_WAY_NODES {
                 return Err(Fallback);
             }
-            refs.push(int(value)?);
+            refs.push(r);
         }
         b"member" if !in_changeset => {
             let (mut t, mut r) = (None, None);
@@ -1081,5 +1133,187 @@ mod tests {
         .message
         .contains("at most"));
     }
+
+    /// SplitMix64 (Steele, Lea, Flood 2014), for seeded test values.
+    struct Rng(u64);
+    impl Rng {
+        fn next(&mut self) -> u64 {
+            self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+            let mut z = self.0;
+            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+            z ^ (z >> 31)
+        }
+        fn below(&mut self, n: usize) -> usize {
+            usize::try_from(self.next() % n as u64).unwrap()
+        }
+    }
+
+    /// The general path's reading of a longitude: `f64`, then `Coord::from_degrees`; and the
+    /// fast path's: 1e-7 units, then `Coord::from_e7`.
+    fn both_ways(s: &str) -> (Option<Coord>, Option<Coord>) {
+        let general = s
+            .trim()
+            .parse()
+            .ok()
+            .and_then(|v: f64| Coord::from_degrees(0.0, v));
+        (general, e7(s).ok().and_then(|n| Coord::from_e7(0, n)))
+    }
+
+    #[test]
+    fn fixed_point_coordinates_match_the_f64_path() {
+        // Edge cases: signs, zero, the limits, more decimals than 7, other number forms.
+        for s in [
+            "-0.0000001", "0.0000001", "90", "-90", "90.0000000", "89.9999999", "-0", "0",
+            "0.5", "12.3456785", "1.0000005", "45.1", "007.1234567", "5.", ".5", "-.5",
+            "+1.5", " 1.5", "1e-3", "1E2", "0000.5", "90.0000001", "1.23456785",
+        ] {
+            match e7(s) {
+                Ok(_) => assert_eq!(both_ways(s).0, both_ways(s).1, "{s}"),
+                // Forms the fast path leaves to the general path.
+                Err(Fallback) => assert!(
+                    s.contains(['e', 'E', '+', ' '])
+                        || s.starts_with('.')
+                        || s.starts_with("-.")
+                        || s.ends_with('.')
+                        || s.starts_with("0000")
+                        || s.split('.').nth(1).is_some_and(|f| f.len() > 7),
+                    "{s} should be read by the fast path"
+                ),
+            }
+        }
+        assert_eq!(e7("-0.0000001").ok(), Some(-1));
+        assert_eq!(e7("180").ok(), Some(1_800_000_000));
+        // Out of range either way.
+        assert_eq!(both_ways("180.0000001"), (None, None));
+        // Seeded random values in 1e-7 units, written with 0 to 7 decimals.
+        let mut rng = Rng(7);
+        for _ in 0..200_000 {
+            let units = i64::try_from(rng.below(3_600_000_001)).unwrap() - 1_800_000_000;
+            let decimals = rng.below(8);
+            let s = format!("{:.*}", decimals, units as f64 / 1e7);
+            let (general, fast) = both_ways(&s);
+            assert!(fast.is_some(), "{s}");
+            assert_eq!(general, fast, "{s}");
+        }
+    }
+
+    #[test]
+    fn integers_match_the_standard_parser() {
+        for s in [
+            "0", "-0", "1", "-1", "123456789012345678", "-123456789012345678",
+            "9223372036854775807", "-9223372036854775808", "9223372036854775808", "+5", " 5",
+            "5 ", "", "-", "1a", "１",
+        ] {
+            assert_eq!(int(s).ok(), s.trim().parse::<i64>().ok(), "{s:?}");
+        }
+    }
+
+    #[test]
+    fn timestamps_match_the_calendar() {
+        // Every year, month and day in the fixed form, against chrono's date arithmetic.
+        let epoch = chrono::NaiveDate::from_ymd_opt(1970, 1, 1).unwrap();
+        let mut valid = 0;
+        for y in 0..=9999 {
+            for m in 0..=13 {
+                for d in 0..=32 {
+                    let s = format!("{y:04}-{m:02}-{d:02}T23:59:07Z");
+                    let expected = chrono::NaiveDate::from_ymd_opt(y, m, d).map(|date| {
+                        date.signed_duration_since(epoch).num_days() * 86_400 + 86_347
+                    });
+                    assert_eq!(parse_timestamp(&s), expected, "{s}");
+                    valid += usize::from(expected.is_some());
+                }
+            }
+        }
+        // 10 000 years of 365.2425 days.
+        assert_eq!(valid, 3_652_425);
+    }
+
+    /// Start tags the fast path takes or leaves: plain, with entities, odd spacing, repeated
+    /// or malformed attributes, other number forms.
+    fn tag_variants() -> Vec<String> {
+        let bases = [
+            r#"node id="1" version="2" changeset="3" uid="4" user="a b" timestamp="2026-01-01T00:00:00Z" lat="1.5" lon="-2.25""#,
+            r#"way id="5" version="1" visible="false" user='q"r'"#,
+            r#"node id="6" lat="90" lon="180" visible="true""#,
+            r#"tag k="name" v="X""#,
+            r#"nd ref="7""#,
+            r#"member type="way" ref="8" role="outer""#,
+            r#"member type="relation" ref="9" role="""#,
+        ];
+        let tokens = [
+            " ", "\t", "\n", "\r", "=", "\"", "'", "&amp;", "&lt;", "&bogus;", "&", " id=\"2\"",
+            " k=\"k\"", " ref=\"1\"", " lat=\"1e-3\"", "x", "-", "+", ".", "0", "9", "é",
+            " a='\"'", "\u{1}", "99999999999999999999", " type=\"node\"", " v=\"v\"",
+        ];
+        let mut rng = Rng(11);
+        let mut out: Vec<String> = bases.iter().map(|s| (*s).to_owned()).collect();
+        for _ in 0..40_000 {
+            let mut s = bases[rng.below(bases.len())].to_owned();
+            for _ in 0..=rng.below(2) {
+                let mut at = rng.below(s.len() + 1);
+                while !s.is_char_boundary(at) {
+                    at -= 1;
+                }
+                if rng.below(3) == 0 && at < s.len() {
+                    let mut end = at + 1;
+                    while !s.is_char_boundary(end) {
+                        end += 1;
+                    }
+                    s.replace_range(at..end, "");
+                } else {
+                    s.insert_str(at, tokens[rng.below(tokens.len())]);
+                }
+            }
+            out.push(s);
+        }
+        out
+    }
+
+    #[test]
+    fn fast_path_agrees_with_the_general_path() {
+        let (mut fast, mut total) = (0, 0);
+        for text in tag_variants() {
+            let doc = format!("<{text}/>");
+            let mut reader = Reader::from_str(&doc);
+            let Ok(Event::Empty(e)) = reader.read_event() else {
+                continue;
+            };
+            let name = e.name();
+            let name = name.as_ref().as_bytes();
+            total += 1;
+            if matches!(name, b"node" | b"way" | b"relation") {
+                let mut spare = Vec::new();
+                let (mut a, mut b) = (RawElement::default(), RawElement::default());
+                a.clear(&mut spare);
+                b.clear(&mut spare);
+                if element_attrs_fast(&e, &mut a).is_ok() {
+                    fast += 1;
+                    assert_eq!(element_attrs(&e, &mut b), Ok(()), "{text}");
+                    assert_eq!(a, b, "{text}");
+                }
+            } else {
+                for in_changeset in [false, true] {
+                    let (mut a, mut b) = (RawElement::default(), RawElement::default());
+                    let (mut ca, mut cb) = (RawChangeset::default(), RawChangeset::default());
+                    let mut spare = vec![("old".to_owned(), "strings".to_owned())];
+                    let tags = if in_changeset { &mut ca.tags } else { &mut a.tags };
+                    if child_fast(&e, name, in_changeset, &mut a.refs, &mut a.members, tags, &mut spare)
+                        .is_ok()
+                    {
+                        fast += 1;
+                        let general = child(&e, name, &mut b, &mut cb, in_changeset);
+                        assert_eq!(general, Ok(()), "{text}");
+                        assert_eq!((a.clone(), ca.clone()), (b, cb), "{text}");
+                    }
+                }
+            }
+        }
+        // A good share of the variants is still plain, and many are not.
+        assert!(total > 30_000, "{total}");
+        assert!(fast > total / 5 && fast < total / 2, "{fast} of {total}");
+    }
 }
+
 
