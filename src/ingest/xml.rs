@@ -297,7 +297,10 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                             }
                             (Root::Osm, b"changeset") => {
                                 cs.clear(&mut spare);
-                                changeset_attrs(e, &mut cs).map_err(perr)?;
+                                if changeset_attrs_fast(e, &mut cs).is_err() {
+                                    cs.clear(&mut spare);
+                                    changeset_attrs(e, &mut cs).map_err(perr)?;
+                                }
                                 if empty {
                                     sink.changeset(&cs).map_err(ReadError::Sink)?;
                                 } else {
@@ -660,6 +663,45 @@ fn element_attrs_fast(e: &BytesStart<'_>, el: &mut RawElement) -> Result<(), Fal
     }
     if let (Some(la), Some(lo)) = (lat, lon) {
         el.coord = Some(Coord::from_e7(la, lo).ok_or(Fallback)?);
+    }
+    Ok(())
+}
+
+/// [`changeset_attrs`] for plain tags; on [`Fallback`] `cs` is to be cleared and read again.
+fn changeset_attrs_fast(e: &BytesStart<'_>, cs: &mut RawChangeset) -> Result<(), Fallback> {
+    let mut has_id = false;
+    let mut bbox = [None; 4];
+    plain_attrs(e, |key, v| {
+        match key.as_bytes() {
+            b"id" => {
+                cs.id = int(v)?;
+                has_id = true;
+            }
+            b"uid" => cs.uid = int(v)?,
+            b"user" => {
+                if !plain_len_ok(v) {
+                    return Err(Fallback);
+                }
+                cs.user.push_str(v);
+            }
+            b"created_at" => cs.created_at = parse_timestamp(v).ok_or(Fallback)?,
+            b"closed_at" => cs.closed_at = Some(parse_timestamp(v).ok_or(Fallback)?),
+            b"num_changes" => cs.num_changes = int(v)?,
+            b"min_lat" => bbox[0] = Some(e7(v)?),
+            b"min_lon" => bbox[1] = Some(e7(v)?),
+            b"max_lat" => bbox[2] = Some(e7(v)?),
+            b"max_lon" => bbox[3] = Some(e7(v)?),
+            _ => {}
+        }
+        Ok(())
+    })?;
+    if !has_id {
+        return Err(Fallback);
+    }
+    if let [Some(a), Some(b), Some(c), Some(d)] = bbox {
+        let lo = Coord::from_e7(a, b).ok_or(Fallback)?;
+        let hi = Coord::from_e7(c, d).ok_or(Fallback)?;
+        cs.bbox = Some((lo, hi));
     }
     Ok(())
 }
@@ -1241,9 +1283,11 @@ mod tests {
             r#"nd ref="7""#,
             r#"member type="way" ref="8" role="outer""#,
             r#"member type="relation" ref="9" role="""#,
+            r#"changeset id="10" uid="4" user="u" created_at="2026-01-01T00:00:00Z" closed_at="2026-01-01T01:00:00Z" min_lat="-1.5" min_lon="2" max_lat="3" max_lon="4.0000001" num_changes="5""#,
+            r#"changeset id="11" created_at="2026-01-01T00:00:00Z" open="true""#,
         ];
         let tokens = [
-            " ", "\t", "\n", "\r", "=", "\"", "'", "&amp;", "&lt;", "&bogus;", "&", " id=\"2\"",
+            " min_lat=\"95\"", " closed_at=\"x\"", " ", "\t", "\n", "\r", "=", "\"", "'", "&amp;", "&lt;", "&bogus;", "&", " id=\"2\"",
             " k=\"k\"", " ref=\"1\"", " lat=\"1e-3\"", "x", "-", "+", ".", "0", "9", "é",
             " a='\"'", "\u{1}", "99999999999999999999", " type=\"node\"", " v=\"v\"",
         ];
@@ -1293,6 +1337,16 @@ mod tests {
                     assert_eq!(element_attrs(&e, &mut b), Ok(()), "{text}");
                     assert_eq!(a, b, "{text}");
                 }
+            } else if name == b"changeset" {
+                let mut spare = Vec::new();
+                let (mut a, mut b) = (RawChangeset::default(), RawChangeset::default());
+                a.clear(&mut spare);
+                b.clear(&mut spare);
+                if changeset_attrs_fast(&e, &mut a).is_ok() {
+                    fast += 1;
+                    assert_eq!(changeset_attrs(&e, &mut b), Ok(()), "{text}");
+                    assert_eq!(a, b, "{text}");
+                }
             } else {
                 for in_changeset in [false, true] {
                     let (mut a, mut b) = (RawElement::default(), RawElement::default());
@@ -1315,5 +1369,6 @@ mod tests {
         assert!(fast > total / 5 && fast < total / 2, "{fast} of {total}");
     }
 }
+
 
 
