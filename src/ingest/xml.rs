@@ -5,8 +5,15 @@
 //! they close, so memory does not grow with the file. Broken XML or a missing/invalid id is
 //! fatal for the file; an odd but valid element (a node without coordinates in a snapshot) is
 //! skipped and counted.
+//!
+//! Speed: most tags are in the plain form OSM writers produce (unique attributes, values without
+//! entities or line breaks, integers, coordinates with at most 7 decimals, `YYYY-MM-DDTHH:MM:SSZ`
+//! times). A fast path reads those from the raw attribute text without copying; anything else,
+//! including every error, goes to the general path, which reads the tag again and gives the
+//! result and the message it always gave. No single tag or text run longer than
+//! [`MAX_EVENT_BYTES`] is held in memory.
 
-use std::io::BufRead;
+use std::io::{BufRead, Read};
 
 use quick_xml::events::{BytesStart, Event};
 use quick_xml::Reader;
@@ -22,6 +29,12 @@ pub const MAX_TAGS: usize = 5_000;
 pub const MAX_WAY_NODES: usize = 2_000;
 /// Most members in one relation (the OSM API allows 32 000).
 pub const MAX_MEMBERS: usize = 32_000;
+/// Longest single XML tag (from `<` to `>`, attributes included), text run or comment read, in
+/// bytes; a longer one is refused with an error at its start, so memory stays bounded. A valid
+/// element's start tag is a few kilobytes at most (10 attributes and a tag value of
+/// [`MAX_TAG_BYTES`], even with every character written as an entity); whitespace between tags
+/// does not count.
+pub const MAX_EVENT_BYTES: usize = 1 << 20;
 
 /// What went wrong at a place in the XML text. The caller adds the file name and turns the
 /// byte offset into a line and column.
@@ -63,8 +76,17 @@ pub struct RawElement {
     pub members: Vec<(ElementType, i64)>,
 }
 
+/// Keeps the strings of `tags` for reuse, a bounded number of them.
+fn recycle(tags: &mut Vec<(String, String)>, spare: &mut Vec<(String, String)>) {
+    const KEEP: usize = 256;
+    let room = KEEP.saturating_sub(spare.len()).min(tags.len());
+    spare.extend(tags.drain(..room));
+    tags.clear();
+}
+
 impl RawElement {
-    fn clear(&mut self) {
+    fn clear(&mut self, spare: &mut Vec<(String, String)>) {
+        recycle(&mut self.tags, spare);
         self.etype = None;
         self.id = 0;
         self.version = 0;
@@ -104,7 +126,8 @@ pub struct RawChangeset {
 }
 
 impl RawChangeset {
-    fn clear(&mut self) {
+    fn clear(&mut self, spare: &mut Vec<(String, String)>) {
+        recycle(&mut self.tags, spare);
         *self = Self {
             user: std::mem::take(&mut self.user),
             tags: std::mem::take(&mut self.tags),
@@ -155,11 +178,13 @@ pub enum Root {
 /// [`ReadError::Parse`] for malformed XML, a wrong root, a missing or invalid id, version or
 /// coordinate attribute, or a size limit exceeded; [`ReadError::Sink`] when the sink fails.
 pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, ReadError> {
-    let mut reader = Reader::from_reader(input);
+    let mut reader = Reader::from_reader(EventCap::new(input));
     reader.config_mut().trim_text(true);
     let mut buf = Vec::with_capacity(4096);
     let mut el = RawElement::default();
     let mut cs = RawChangeset::default();
+    // Tag strings of earlier elements, reused so that a tag costs no allocation.
+    let mut spare: Vec<(String, String)> = Vec::new();
     let mut root: Option<Root> = None;
     let mut op: Option<Op> = None;
     // What is open below the root: an element or a changeset whose children we collect.
@@ -169,7 +194,18 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
 
     loop {
         let before = reader.buffer_position();
-        let event = reader.read_event_into(&mut buf).map_err(|e| {
+        reader.get_mut().start_event();
+        let event = reader.read_event_into(&mut buf);
+        if let Some(skipped) = reader.get_ref().too_long() {
+            return Err(ReadError::Parse(ParseError {
+                offset: before + skipped,
+                message: format!(
+                    "an XML tag or text run longer than {MAX_EVENT_BYTES} bytes; no valid OSM \
+                     element needs one so long"
+                ),
+            }));
+        }
+        let event = event.map_err(|e| {
             ReadError::Parse(ParseError {
                 offset: reader.error_position(),
                 message: format!("malformed XML: {e}"),
@@ -215,7 +251,24 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                     }
                     Some(r) => {
                         if open_element || open_changeset {
-                            child(e, name, &mut el, &mut cs, open_changeset).map_err(perr)?;
+                            let tags = if open_changeset {
+                                &mut cs.tags
+                            } else {
+                                &mut el.tags
+                            };
+                            if child_fast(
+                                e,
+                                name,
+                                open_changeset,
+                                &mut el.refs,
+                                &mut el.members,
+                                tags,
+                                &mut spare,
+                            )
+                            .is_err()
+                            {
+                                child(e, name, &mut el, &mut cs, open_changeset).map_err(perr)?;
+                            }
                             continue;
                         }
                         match (r, name) {
@@ -229,9 +282,13 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                                         String::from_utf8_lossy(name)
                                     )));
                                 }
-                                el.clear();
+                                el.clear(&mut spare);
                                 el.etype = ElementType::from_name(name);
-                                element_attrs(e, &mut el).map_err(perr)?;
+                                if element_attrs_fast(e, &mut el).is_err() {
+                                    el.clear(&mut spare);
+                                    el.etype = ElementType::from_name(name);
+                                    element_attrs(e, &mut el).map_err(perr)?;
+                                }
                                 if empty {
                                     deliver(op, &el, sink)?;
                                 } else {
@@ -239,8 +296,11 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                                 }
                             }
                             (Root::Osm, b"changeset") => {
-                                cs.clear();
-                                changeset_attrs(e, &mut cs).map_err(perr)?;
+                                cs.clear(&mut spare);
+                                if changeset_attrs_fast(e, &mut cs).is_err() {
+                                    cs.clear(&mut spare);
+                                    changeset_attrs(e, &mut cs).map_err(perr)?;
+                                }
                                 if empty {
                                     sink.changeset(&cs).map_err(ReadError::Sink)?;
                                 } else {
@@ -298,6 +358,121 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
     })
 }
 
+/// The reader's input: buffers `inner` and counts the bytes of the XML event being read, so
+/// that one longer than [`MAX_EVENT_BYTES`] is refused (with an I/O error that the reader
+/// passes on) before it is buffered whole. Whitespace before the event does not count: the
+/// XML reader skips it without keeping it.
+struct EventCap<R> {
+    inner: R,
+    buf: Box<[u8]>,
+    start: usize,
+    end: usize,
+    /// Still in the whitespace before the event.
+    leading: bool,
+    /// Whitespace bytes consumed before the event.
+    skipped: u64,
+    /// Bytes of the event consumed so far.
+    counted: u64,
+}
+
+impl<R: Read> EventCap<R> {
+    /// Large enough that a buffer refill is rare against the per-event cost.
+    const CAPACITY: usize = 1 << 17;
+
+    fn new(inner: R) -> Self {
+        Self {
+            inner,
+            buf: vec![0; Self::CAPACITY].into_boxed_slice(),
+            start: 0,
+            end: 0,
+            leading: true,
+            skipped: 0,
+            counted: 0,
+        }
+    }
+
+    /// Called before each event is read.
+    fn start_event(&mut self) {
+        self.leading = true;
+        self.skipped = 0;
+        self.counted = 0;
+    }
+
+    /// The whitespace skipped before the event when the event is longer than the limit.
+    fn too_long(&self) -> Option<u64> {
+        (self.counted > MAX_EVENT_BYTES as u64).then_some(self.skipped)
+    }
+}
+
+impl<R: Read> Read for EventCap<R> {
+    fn read(&mut self, out: &mut [u8]) -> std::io::Result<usize> {
+        let n = {
+            let available = self.fill_buf()?;
+            let n = available.len().min(out.len());
+            out[..n].copy_from_slice(&available[..n]);
+            n
+        };
+        self.consume(n);
+        Ok(n)
+    }
+}
+
+impl<R: Read> EventCap<R> {
+    #[cold]
+    fn refill(&mut self) -> std::io::Result<()> {
+        self.start = 0;
+        self.end = 0;
+        self.end = loop {
+            match self.inner.read(&mut self.buf) {
+                Ok(n) => break n,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => {}
+                Err(e) => return Err(e),
+            }
+        };
+        Ok(())
+    }
+}
+
+impl<R: Read> BufRead for EventCap<R> {
+    #[inline]
+    fn fill_buf(&mut self) -> std::io::Result<&[u8]> {
+        if self.counted > MAX_EVENT_BYTES as u64 {
+            return Err(std::io::Error::other("XML event too long"));
+        }
+        if self.start == self.end {
+            self.refill()?;
+        }
+        Ok(&self.buf[self.start..self.end])
+    }
+
+    #[inline]
+    fn consume(&mut self, n: usize) {
+        let n = n.min(self.end - self.start);
+        let taken = &self.buf[self.start..self.start + n];
+        let event_bytes = if self.leading {
+            // The same whitespace the XML reader skips between tags.
+            match taken
+                .iter()
+                .position(|b| !matches!(b, b' ' | b'\t' | b'\r' | b'\n'))
+            {
+                Some(i) => {
+                    self.leading = false;
+                    self.skipped += i as u64;
+                    n - i
+                }
+                None => {
+                    self.skipped += n as u64;
+                    0
+                }
+            }
+        } else {
+            n
+        };
+        self.counted += event_bytes as u64;
+        self.start += n;
+    }
+}
+
 /// Hands a complete element to the sink, or counts it as skipped when it is odd but valid.
 fn deliver(op: Option<Op>, el: &RawElement, sink: &mut impl OsmSink) -> Result<(), ReadError> {
     let deleted = op == Some(Op::Delete) || !el.visible;
@@ -306,6 +481,305 @@ fn deliver(op: Option<Op>, el: &RawElement, sink: &mut impl OsmSink) -> Result<(
         return Ok(());
     }
     sink.element(op, el).map_err(ReadError::Sink)
+}
+
+/// The fast path cannot take this tag: the general path reads it again.
+#[derive(Debug)]
+struct Fallback;
+
+/// [`STOP`] bit: a byte that ends an attribute key (`=` or whitespace).
+const KEY_END: u8 = 1;
+/// [`STOP`] bit: a byte that ends a plain attribute value or makes it not plain (a quote, `&`,
+/// tab or line break).
+const VALUE_END: u8 = 2;
+/// Byte classes of [`plain_attrs`], looked up instead of compared one by one.
+const STOP: [u8; 256] = {
+    let mut t = [0u8; 256];
+    t[b'=' as usize] = KEY_END;
+    t[b' ' as usize] = KEY_END;
+    t[b'\t' as usize] = KEY_END | VALUE_END;
+    t[b'\r' as usize] = KEY_END | VALUE_END;
+    t[b'\n' as usize] = KEY_END | VALUE_END;
+    t[b'"' as usize] = VALUE_END;
+    t[b'\'' as usize] = VALUE_END;
+    t[b'&' as usize] = VALUE_END;
+    t
+};
+
+/// Calls `f` with each attribute's key and value when every attribute of `e` is written
+/// `key="value"` or `key='value'` (no space around `=`), its key is not repeated and its value
+/// needs no normalization (no entity, tab or line break). On such tags quick-xml's attribute
+/// iteration (the general path) finds the same keys and values and no error; this scan is the
+/// same walk without its per-tag allocation, duplicate bookkeeping and value copies.
+fn plain_attrs<'a>(
+    e: &'a BytesStart<'_>,
+    mut f: impl FnMut(&'a str, &'a str) -> Result<(), Fallback>,
+) -> Result<(), Fallback> {
+    let raw = e.attributes_raw();
+    let b = raw.as_bytes();
+    let space = |c: u8| matches!(c, b' ' | b'\t' | b'\r' | b'\n');
+    let mut seen = [""; 16];
+    let mut n = 0;
+    let mut i = 0;
+    loop {
+        while i < b.len() && space(b[i]) {
+            i += 1;
+        }
+        if i == b.len() {
+            return Ok(());
+        }
+        let key_start = i;
+        while i < b.len() && STOP[usize::from(b[i])] & KEY_END == 0 {
+            i += 1;
+        }
+        if i == key_start || b.get(i) != Some(&b'=') {
+            return Err(Fallback);
+        }
+        let key = raw.get(key_start..i).ok_or(Fallback)?;
+        let quote = match b.get(i + 1) {
+            Some(&q @ (b'"' | b'\'')) => q,
+            _ => return Err(Fallback),
+        };
+        i += 2;
+        let value_start = i;
+        loop {
+            while i < b.len() && STOP[usize::from(b[i])] & VALUE_END == 0 {
+                i += 1;
+            }
+            match b.get(i) {
+                Some(&c) if c == quote => break,
+                // The other quote is part of the value.
+                Some(b'"' | b'\'') => i += 1,
+                _ => return Err(Fallback),
+            }
+        }
+        let value = raw.get(value_start..i).ok_or(Fallback)?;
+        i += 1;
+        if n == seen.len() || seen[..n].contains(&key) {
+            return Err(Fallback);
+        }
+        seen[n] = key;
+        n += 1;
+        f(key, value)?;
+    }
+}
+
+/// An integer as [`parse_i64`] reads it, without building its error message.
+fn int(v: &str) -> Result<i64, Fallback> {
+    let b = v.as_bytes();
+    let (negative, digits) = match b.split_first() {
+        Some((b'-', rest)) => (true, rest),
+        _ => (false, b),
+    };
+    // Up to 18 digits cannot overflow; anything else is read by the standard parser.
+    if digits.is_empty() || digits.len() > 18 {
+        return v.trim().parse().map_err(|_| Fallback);
+    }
+    let mut n = 0i64;
+    for &c in digits {
+        let d = c.wrapping_sub(b'0');
+        if d > 9 {
+            return v.trim().parse().map_err(|_| Fallback);
+        }
+        n = n * 10 + i64::from(d);
+    }
+    Ok(if negative { -n } else { n })
+}
+
+/// A coordinate written `-?D{1,3}(.D{1,7})?` in 1e-7 degree units, exactly: for these the
+/// general path's `f64` parse, `* 1e7` and rounding give the same integer, since the product is
+/// within a few units of 2^-52 relative of an integer below 2^31. Other forms (exponents, more
+/// decimals, a `+` sign, spaces) go to the general path.
+fn e7(v: &str) -> Result<i64, Fallback> {
+    const SCALE: [i64; 8] = [
+        10_000_000, 1_000_000, 100_000, 10_000, 1_000, 100, 10, 1,
+    ];
+    let b = v.as_bytes();
+    let (negative, rest) = match b.split_first() {
+        Some((b'-', rest)) => (true, rest),
+        _ => (false, b),
+    };
+    let (whole, fraction) = match rest.iter().position(|&c| c == b'.') {
+        Some(i) => (&rest[..i], &rest[i + 1..]),
+        None => (rest, &rest[rest.len()..]),
+    };
+    if whole.is_empty()
+        || whole.len() > 3
+        || fraction.len() > 7
+        || (fraction.is_empty() && whole.len() < rest.len())
+    {
+        return Err(Fallback);
+    }
+    let mut n = 0i64;
+    for &c in whole.iter().chain(fraction) {
+        let d = c.wrapping_sub(b'0');
+        if d > 9 {
+            return Err(Fallback);
+        }
+        n = n * 10 + i64::from(d);
+    }
+    n *= SCALE[fraction.len()];
+    Ok(if negative { -n } else { n })
+}
+
+/// Whether [`check_len`] accepts `v`, without building its message.
+fn plain_len_ok(v: &str) -> bool {
+    // The control characters check_len refuses are all ASCII, so bytes can be looked at.
+    v.len() <= MAX_TAG_BYTES
+        && !v
+            .bytes()
+            .any(|b| b < b' ' && !matches!(b, b'\t' | b'\n' | b'\r'))
+}
+
+/// [`element_attrs`] for plain tags; on [`Fallback`] `el` is to be cleared and read again.
+fn element_attrs_fast(e: &BytesStart<'_>, el: &mut RawElement) -> Result<(), Fallback> {
+    let mut has_id = false;
+    let (mut lat, mut lon) = (None, None);
+    plain_attrs(e, |key, v| {
+        match key.as_bytes() {
+            b"id" => {
+                el.id = int(v)?;
+                has_id = true;
+            }
+            b"version" => el.version = int(v)?,
+            b"changeset" => el.changeset = int(v)?,
+            b"uid" => el.uid = int(v)?,
+            b"user" => {
+                if !plain_len_ok(v) {
+                    return Err(Fallback);
+                }
+                el.user.push_str(v);
+            }
+            b"timestamp" => el.timestamp = parse_timestamp(v).ok_or(Fallback)?,
+            b"visible" => el.visible = v != "false",
+            b"lat" => lat = Some(e7(v)?),
+            b"lon" => lon = Some(e7(v)?),
+            _ => {}
+        }
+        Ok(())
+    })?;
+    if !has_id {
+        return Err(Fallback);
+    }
+    if let (Some(la), Some(lo)) = (lat, lon) {
+        el.coord = Some(Coord::from_e7(la, lo).ok_or(Fallback)?);
+    }
+    Ok(())
+}
+
+/// [`changeset_attrs`] for plain tags; on [`Fallback`] `cs` is to be cleared and read again.
+fn changeset_attrs_fast(e: &BytesStart<'_>, cs: &mut RawChangeset) -> Result<(), Fallback> {
+    let mut has_id = false;
+    let mut bbox = [None; 4];
+    plain_attrs(e, |key, v| {
+        match key.as_bytes() {
+            b"id" => {
+                cs.id = int(v)?;
+                has_id = true;
+            }
+            b"uid" => cs.uid = int(v)?,
+            b"user" => {
+                if !plain_len_ok(v) {
+                    return Err(Fallback);
+                }
+                cs.user.push_str(v);
+            }
+            b"created_at" => cs.created_at = parse_timestamp(v).ok_or(Fallback)?,
+            b"closed_at" => cs.closed_at = Some(parse_timestamp(v).ok_or(Fallback)?),
+            b"num_changes" => cs.num_changes = int(v)?,
+            b"min_lat" => bbox[0] = Some(e7(v)?),
+            b"min_lon" => bbox[1] = Some(e7(v)?),
+            b"max_lat" => bbox[2] = Some(e7(v)?),
+            b"max_lon" => bbox[3] = Some(e7(v)?),
+            _ => {}
+        }
+        Ok(())
+    })?;
+    if !has_id {
+        return Err(Fallback);
+    }
+    if let [Some(a), Some(b), Some(c), Some(d)] = bbox {
+        let lo = Coord::from_e7(a, b).ok_or(Fallback)?;
+        let hi = Coord::from_e7(c, d).ok_or(Fallback)?;
+        cs.bbox = Some((lo, hi));
+    }
+    Ok(())
+}
+
+/// [`child`] for plain tags; changes nothing when it returns [`Fallback`].
+fn child_fast(
+    e: &BytesStart<'_>,
+    name: &[u8],
+    in_changeset: bool,
+    refs: &mut Vec<i64>,
+    members: &mut Vec<(ElementType, i64)>,
+    tags: &mut Vec<(String, String)>,
+    spare: &mut Vec<(String, String)>,
+) -> Result<(), Fallback> {
+    match name {
+        b"tag" => {
+            let (mut k, mut v) = (None, None);
+            plain_attrs(e, |key, value| {
+                match key {
+                    "k" => k = Some(value),
+                    "v" => v = Some(value),
+                    _ => {}
+                }
+                Ok(())
+            })?;
+            let (Some(k), Some(v)) = (k, v) else {
+                return Err(Fallback);
+            };
+            if !plain_len_ok(k) || !plain_len_ok(v) || tags.len() >= MAX_TAGS {
+                return Err(Fallback);
+            }
+            let (mut key, mut value) = spare.pop().unwrap_or_default();
+            key.clear();
+            key.push_str(k);
+            value.clear();
+            value.push_str(v);
+            tags.push((key, value));
+        }
+        b"nd" if !in_changeset => {
+            // A plain tag has one ref; the general path takes the first of several.
+            let mut r = None;
+            plain_attrs(e, |key, value| {
+                if key == "ref" {
+                    r = Some(int(value)?);
+                }
+                Ok(())
+            })?;
+            let r = r.ok_or(Fallback)?;
+            if refs.len() >= MAX_WAY_NODES {
+                return Err(Fallback);
+            }
+            refs.push(r);
+        }
+        b"member" if !in_changeset => {
+            let (mut t, mut r) = (None, None);
+            plain_attrs(e, |key, value| {
+                match key {
+                    "type" => t = Some(value),
+                    "ref" => r = Some(int(value)?),
+                    _ => {}
+                }
+                Ok(())
+            })?;
+            let (Some(t), Some(r)) = (t, r) else {
+                return Err(Fallback);
+            };
+            let t = ElementType::from_name(t.as_bytes()).ok_or(Fallback)?;
+            if members.len() >= MAX_MEMBERS {
+                return Err(Fallback);
+            }
+            if t != ElementType::Relation {
+                members.push((t, r));
+            }
+        }
+        // Ignored children cost nothing to read again.
+        _ => return Err(Fallback),
+    }
+    Ok(())
 }
 
 fn attr_str<'a>(
@@ -567,9 +1041,8 @@ pub fn parse_timestamp(s: &str) -> Option<i64> {
         if h > 23 || mi > 59 || se > 60 {
             return None;
         }
-        let days = date
-            .signed_duration_since(chrono::NaiveDate::from_ymd_opt(1970, 1, 1)?)
-            .num_days();
+        // 1970-01-01 is day 719 163 counted from 0001-01-01 as day 1.
+        let days = i64::from(chrono::Datelike::num_days_from_ce(&date)) - 719_163;
         return Some(days * 86_400 + h * 3600 + mi * 60 + se);
     }
     chrono::DateTime::parse_from_rfc3339(s)
@@ -702,4 +1175,200 @@ mod tests {
         .message
         .contains("at most"));
     }
+
+    /// SplitMix64 (Steele, Lea, Flood 2014), for seeded test values.
+    struct Rng(u64);
+    impl Rng {
+        fn next(&mut self) -> u64 {
+            self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+            let mut z = self.0;
+            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+            z ^ (z >> 31)
+        }
+        fn below(&mut self, n: usize) -> usize {
+            usize::try_from(self.next() % n as u64).unwrap()
+        }
+    }
+
+    /// The general path's reading of a longitude: `f64`, then `Coord::from_degrees`; and the
+    /// fast path's: 1e-7 units, then `Coord::from_e7`.
+    fn both_ways(s: &str) -> (Option<Coord>, Option<Coord>) {
+        let general = s
+            .trim()
+            .parse()
+            .ok()
+            .and_then(|v: f64| Coord::from_degrees(0.0, v));
+        (general, e7(s).ok().and_then(|n| Coord::from_e7(0, n)))
+    }
+
+    #[test]
+    fn fixed_point_coordinates_match_the_f64_path() {
+        // Edge cases: signs, zero, the limits, more decimals than 7, other number forms.
+        for s in [
+            "-0.0000001", "0.0000001", "90", "-90", "90.0000000", "89.9999999", "-0", "0",
+            "0.5", "12.3456785", "1.0000005", "45.1", "007.1234567", "5.", ".5", "-.5",
+            "+1.5", " 1.5", "1e-3", "1E2", "0000.5", "90.0000001", "1.23456785",
+        ] {
+            match e7(s) {
+                Ok(_) => assert_eq!(both_ways(s).0, both_ways(s).1, "{s}"),
+                // Forms the fast path leaves to the general path.
+                Err(Fallback) => assert!(
+                    s.contains(['e', 'E', '+', ' '])
+                        || s.starts_with('.')
+                        || s.starts_with("-.")
+                        || s.ends_with('.')
+                        || s.starts_with("0000")
+                        || s.split('.').nth(1).is_some_and(|f| f.len() > 7),
+                    "{s} should be read by the fast path"
+                ),
+            }
+        }
+        assert_eq!(e7("-0.0000001").ok(), Some(-1));
+        assert_eq!(e7("180").ok(), Some(1_800_000_000));
+        // Out of range either way.
+        assert_eq!(both_ways("180.0000001"), (None, None));
+        // Seeded random values in 1e-7 units, written with 0 to 7 decimals.
+        let mut rng = Rng(7);
+        for _ in 0..200_000 {
+            let units = i64::try_from(rng.below(3_600_000_001)).unwrap() - 1_800_000_000;
+            let decimals = rng.below(8);
+            let s = format!("{:.*}", decimals, units as f64 / 1e7);
+            let (general, fast) = both_ways(&s);
+            assert!(fast.is_some(), "{s}");
+            assert_eq!(general, fast, "{s}");
+        }
+    }
+
+    #[test]
+    fn integers_match_the_standard_parser() {
+        for s in [
+            "0", "-0", "1", "-1", "123456789012345678", "-123456789012345678",
+            "9223372036854775807", "-9223372036854775808", "9223372036854775808", "+5", " 5",
+            "5 ", "", "-", "1a", "１",
+        ] {
+            assert_eq!(int(s).ok(), s.trim().parse::<i64>().ok(), "{s:?}");
+        }
+    }
+
+    #[test]
+    fn timestamps_match_the_calendar() {
+        // Every year, month and day in the fixed form, against chrono's date arithmetic.
+        let epoch = chrono::NaiveDate::from_ymd_opt(1970, 1, 1).unwrap();
+        let mut valid = 0;
+        for y in 0..=9999 {
+            for m in 0..=13 {
+                for d in 0..=32 {
+                    let s = format!("{y:04}-{m:02}-{d:02}T23:59:07Z");
+                    let expected = chrono::NaiveDate::from_ymd_opt(y, m, d).map(|date| {
+                        date.signed_duration_since(epoch).num_days() * 86_400 + 86_347
+                    });
+                    assert_eq!(parse_timestamp(&s), expected, "{s}");
+                    valid += usize::from(expected.is_some());
+                }
+            }
+        }
+        // 10 000 years of 365.2425 days.
+        assert_eq!(valid, 3_652_425);
+    }
+
+    /// Start tags the fast path takes or leaves: plain, with entities, odd spacing, repeated
+    /// or malformed attributes, other number forms.
+    fn tag_variants() -> Vec<String> {
+        let bases = [
+            r#"node id="1" version="2" changeset="3" uid="4" user="a b" timestamp="2026-01-01T00:00:00Z" lat="1.5" lon="-2.25""#,
+            r#"way id="5" version="1" visible="false" user='q"r'"#,
+            r#"node id="6" lat="90" lon="180" visible="true""#,
+            r#"tag k="name" v="X""#,
+            r#"nd ref="7""#,
+            r#"member type="way" ref="8" role="outer""#,
+            r#"member type="relation" ref="9" role="""#,
+            r#"changeset id="10" uid="4" user="u" created_at="2026-01-01T00:00:00Z" closed_at="2026-01-01T01:00:00Z" min_lat="-1.5" min_lon="2" max_lat="3" max_lon="4.0000001" num_changes="5""#,
+            r#"changeset id="11" created_at="2026-01-01T00:00:00Z" open="true""#,
+        ];
+        let tokens = [
+            " min_lat=\"95\"", " closed_at=\"x\"", " ", "\t", "\n", "\r", "=", "\"", "'", "&amp;", "&lt;", "&bogus;", "&", " id=\"2\"",
+            " k=\"k\"", " ref=\"1\"", " lat=\"1e-3\"", "x", "-", "+", ".", "0", "9", "é",
+            " a='\"'", "\u{1}", "99999999999999999999", " type=\"node\"", " v=\"v\"",
+        ];
+        let mut rng = Rng(11);
+        let mut out: Vec<String> = bases.iter().map(|s| (*s).to_owned()).collect();
+        for _ in 0..40_000 {
+            let mut s = bases[rng.below(bases.len())].to_owned();
+            for _ in 0..=rng.below(2) {
+                let mut at = rng.below(s.len() + 1);
+                while !s.is_char_boundary(at) {
+                    at -= 1;
+                }
+                if rng.below(3) == 0 && at < s.len() {
+                    let mut end = at + 1;
+                    while !s.is_char_boundary(end) {
+                        end += 1;
+                    }
+                    s.replace_range(at..end, "");
+                } else {
+                    s.insert_str(at, tokens[rng.below(tokens.len())]);
+                }
+            }
+            out.push(s);
+        }
+        out
+    }
+
+    #[test]
+    fn fast_path_agrees_with_the_general_path() {
+        let (mut fast, mut total) = (0, 0);
+        for text in tag_variants() {
+            let doc = format!("<{text}/>");
+            let mut reader = Reader::from_str(&doc);
+            let Ok(Event::Empty(e)) = reader.read_event() else {
+                continue;
+            };
+            let name = e.name();
+            let name = name.as_ref().as_bytes();
+            total += 1;
+            if matches!(name, b"node" | b"way" | b"relation") {
+                let mut spare = Vec::new();
+                let (mut a, mut b) = (RawElement::default(), RawElement::default());
+                a.clear(&mut spare);
+                b.clear(&mut spare);
+                if element_attrs_fast(&e, &mut a).is_ok() {
+                    fast += 1;
+                    assert_eq!(element_attrs(&e, &mut b), Ok(()), "{text}");
+                    assert_eq!(a, b, "{text}");
+                }
+            } else if name == b"changeset" {
+                let mut spare = Vec::new();
+                let (mut a, mut b) = (RawChangeset::default(), RawChangeset::default());
+                a.clear(&mut spare);
+                b.clear(&mut spare);
+                if changeset_attrs_fast(&e, &mut a).is_ok() {
+                    fast += 1;
+                    assert_eq!(changeset_attrs(&e, &mut b), Ok(()), "{text}");
+                    assert_eq!(a, b, "{text}");
+                }
+            } else {
+                for in_changeset in [false, true] {
+                    let (mut a, mut b) = (RawElement::default(), RawElement::default());
+                    let (mut ca, mut cb) = (RawChangeset::default(), RawChangeset::default());
+                    let mut spare = vec![("old".to_owned(), "strings".to_owned())];
+                    let tags = if in_changeset { &mut ca.tags } else { &mut a.tags };
+                    if child_fast(&e, name, in_changeset, &mut a.refs, &mut a.members, tags, &mut spare)
+                        .is_ok()
+                    {
+                        fast += 1;
+                        let general = child(&e, name, &mut b, &mut cb, in_changeset);
+                        assert_eq!(general, Ok(()), "{text}");
+                        assert_eq!((a.clone(), ca.clone()), (b, cb), "{text}");
+                    }
+                }
+            }
+        }
+        // A good share of the variants is still plain, and many are not.
+        assert!(total > 30_000, "{total}");
+        assert!(fast > total / 5 && fast < total / 2, "{fast} of {total}");
+    }
 }
+
+
+
