@@ -156,7 +156,11 @@ impl Coord {
     /// Builds a coordinate from 1e-7 degree units; `None` when out of range.
     #[must_use]
     pub fn from_e7(lat_e7: i64, lon_e7: i64) -> Option<Self> {
-        if lat_e7.abs() > Self::LAT_MAX || lon_e7.abs() > Self::LON_MAX {
+        // `unsigned_abs`, not `abs`: i64::MIN (what `from_degrees` saturates huge values to) has
+        // no positive i64, and `abs` overflows on it.
+        if lat_e7.unsigned_abs() > Self::LAT_MAX.unsigned_abs()
+            || lon_e7.unsigned_abs() > Self::LON_MAX.unsigned_abs()
+        {
             return None;
         }
         Some(Self {
@@ -275,6 +279,12 @@ mod tests {
         assert!(Coord::from_degrees(f64::NAN, 0.0).is_none());
         assert!(Coord::from_degrees(90.000_001, 0.0).is_none());
         assert!(Coord::from_degrees(0.0, -180.000_001).is_none());
+        // Found by the osmchange fuzz target (fuzz/regressions/): a latitude so large that
+        // `as i64` saturates to i64::MIN; `abs` overflowed on it (a panic with overflow checks).
+        assert!(Coord::from_degrees(-9_222_036_775_882.0, 3.0).is_none());
+        assert!(Coord::from_e7(i64::MIN, 0).is_none());
+        assert!(Coord::from_e7(0, i64::MIN).is_none());
+        assert!(Coord::from_e7(i64::MAX, 0).is_none());
         let c = Coord::from_degrees(-33.123_456_7, 151.000_000_1).unwrap();
         assert_eq!(c.lat_e7(), -331_234_567);
         assert_eq!(c.lon_e7(), 1_510_000_001);
