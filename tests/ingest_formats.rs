@@ -739,3 +739,48 @@ fn earlier_state_of_tagged_and_untagged_nodes() {
     assert!(idx.get(2).unwrap().unwrap().has_row);
     assert_eq!(idx.get(2).unwrap().unwrap().version, 3);
 }
+
+/// Two different files (an hourly and a daily diff, say) that deliver the same element version:
+/// the edit log keeps both copies, readers see it once, with the earlier state the first copy
+/// recorded.
+#[test]
+fn overlapping_diffs_count_each_version_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let node = |id: i64, v: i64, lat: &str| {
+        format!(
+            r#"<node id="{id}" version="{v}" changeset="{}" uid="3" user="c" timestamp="2026-02-0{v}T10:00:00Z" lat="{lat}" lon="20"/>"#,
+            10 + v
+        )
+    };
+    let hourly = dir.path().join("hour.osc");
+    let daily = dir.path().join("day.osc");
+    std::fs::write(
+        &hourly,
+        format!(
+            "<osmChange version=\"0.6\"><create>{}</create></osmChange>",
+            node(7, 1, "10")
+        ),
+    )
+    .unwrap();
+    std::fs::write(
+        &daily,
+        format!(
+            "<osmChange version=\"0.6\"><create>{}</create><modify>{}</modify></osmChange>",
+            node(7, 1, "10"),
+            node(7, 2, "10.5")
+        ),
+    )
+    .unwrap();
+    let db = dir.path().join("o.db");
+    let s = ingest_into(&db, &[hourly, daily]);
+    assert_eq!((s.files, s.elements, s.edits), (2, 3, 3));
+    let store = Store::open(&db).unwrap();
+    let edits = store.edits(i64::MIN, i64::MAX).unwrap();
+    let versions: Vec<(i64, i64, Option<i64>)> = edits
+        .iter()
+        .map(|e| (e.eid, e.version, e.prev.as_ref().map(|p| p.version)))
+        .collect();
+    assert_eq!(versions, vec![(7, 1, None), (7, 2, Some(1))]);
+    let (placed, _) = load_edits(&store, i64::MIN, i64::MAX).unwrap();
+    assert_eq!(placed.len(), 2);
+}
