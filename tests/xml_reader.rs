@@ -6,8 +6,7 @@
 use std::io::{BufReader, Read};
 
 use hexvigil::ingest::xml::{
-    read_osm, OsmSink, ParseError, RawChangeset, RawElement, ReadError, SinkError,
-    MAX_EVENT_BYTES,
+    read_osm, OsmSink, ParseError, RawChangeset, RawElement, ReadError, SinkError, MAX_EVENT_BYTES,
 };
 use hexvigil::model::Op;
 
@@ -50,8 +49,11 @@ fn a_tag_longer_than_the_limit_is_refused_at_its_start() {
 
 #[test]
 fn text_and_comments_longer_than_the_limit_are_refused() {
-    for (open, fill, close) in [("", b'x', ""), ("<!--", b'-', "-->"), ("<![CDATA[", b'c', "]]>")]
-    {
+    for (open, fill, close) in [
+        ("", b'x', ""),
+        ("<!--", b'-', "-->"),
+        ("<![CDATA[", b'c', "]]>"),
+    ] {
         let mut doc = b"<osm><node id=\"1\" lat=\"1\" lon=\"1\"/>  ".to_vec();
         let start = doc.len() as u64;
         doc.extend_from_slice(open.as_bytes());

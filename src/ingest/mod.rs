@@ -437,6 +437,8 @@ enum Msg {
     Done {
         root: Option<Root>,
         bytes: u64,
+        /// The input's first-node squares that need no database state ([`square_mark`]).
+        squares: Vec<(i64, i64)>,
     },
     Failed(IngestError),
 }
@@ -575,12 +577,20 @@ pub fn ingest_extended(
         let root = loop {
             match rx.recv() {
                 Ok(Msg::Batch { items, bytes }) => {
-                    for item in items {
+                    for item in &items {
                         w.apply(item)?;
                     }
                     bar.inc(bytes);
                 }
-                Ok(Msg::Done { root, bytes }) => {
+                Ok(Msg::Done {
+                    root,
+                    bytes,
+                    squares,
+                }) => {
+                    // Under a clip area the writer marks what it keeps itself.
+                    if extras.clip.is_none() {
+                        tx.add_grid_first(&squares)?;
+                    }
                     bar.inc(bytes);
                     break root;
                 }
@@ -735,7 +745,17 @@ fn run_parsers(
 fn parse_input(input: &Input, sender: &SyncSender<Msg>) {
     let bytes = AtomicU64::new(0);
     let mut reported = 0u64;
+    // Marked here, on the parser's thread, to spare the writer: most of an input's marks need
+    // no database state.
+    let mut squares = Squares::default();
     let mut send = |items: Vec<Item>| -> Result<(), SinkError> {
+        for item in &items {
+            if let Item::Element(op, el) = item {
+                if let Some((p, since)) = square_mark(*op, el) {
+                    squares.mark(p, since);
+                }
+            }
+        }
         let now = bytes.load(Ordering::Relaxed);
         let msg = Msg::Batch {
             items,
@@ -759,6 +779,7 @@ fn parse_input(input: &Input, sender: &SyncSender<Msg>) {
     let msg = match result {
         Ok(root) => Msg::Done {
             root,
+            squares: squares.take(),
             bytes: input.size.saturating_sub(reported),
         },
         Err(e) => Msg::Failed(e),
@@ -878,6 +899,19 @@ struct Squares {
     allocated: usize,
 }
 
+/// The first-node mark an element makes without any database state: a snapshot node since its
+/// creation when it is a version 1, else since before the data; a created node since its
+/// creation. (A node first met in a modification is marked by the writer, which knows.)
+fn square_mark(op: Option<Op>, el: &Element) -> Option<((i32, i32), i64)> {
+    let p = el.pos.filter(|_| el.etype == ElementType::Node)?;
+    match op {
+        None if el.version == 1 => Some((p, el.timestamp)),
+        None => Some((p, i64::MIN)),
+        Some(Op::Create) => Some((p, el.timestamp)),
+        Some(_) => None,
+    }
+}
+
 /// Squares per tile side.
 const TILE: usize = 64;
 /// Squares per world row and column ([`grid_square`]: 0.01° from 90° S and 180° W).
@@ -952,7 +986,7 @@ fn refs_of(el: &RawElement) -> Option<Vec<u8>> {
 }
 
 impl Writer<'_, '_> {
-    fn apply(&mut self, item: Item) -> Result<(), IngestError> {
+    fn apply(&mut self, item: &Item) -> Result<(), IngestError> {
         match item {
             Item::Changeset(cs) => {
                 if let Some(c) = self.clip {
@@ -962,21 +996,21 @@ impl Writer<'_, '_> {
                     }
                 }
                 self.changesets += 1;
-                self.tx.put_changeset(&cs)?;
+                self.tx.put_changeset(cs)?;
             }
             Item::Element(op, el) => {
                 if let Some(c) = self.clip {
-                    if !self.in_clip(c, &el)? {
+                    if !self.in_clip(c, el)? {
                         self.clipped += 1;
                         return Ok(());
                     }
                 }
-                self.element(op, &el)?;
+                self.element(*op, el)?;
                 if self.squares.is_large() {
                     self.tx.add_grid_first(&self.squares.take())?;
                 }
             }
-            Item::Skipped(reason) => *self.skipped.entry(reason).or_default() += 1,
+            Item::Skipped(reason) => *self.skipped.entry(*reason).or_default() += 1,
         }
         Ok(())
     }
@@ -1064,14 +1098,7 @@ impl Writer<'_, '_> {
         let deleted = op == Some(Op::Delete) || !el.visible;
         let is_node = t == ElementType::Node;
         if is_node && op.is_none() {
-            // A snapshot node marks its square: since its creation when it is a version 1,
-            // else since before the data.
-            if let Some(p) = pos {
-                let since = if el.version == 1 {
-                    el.timestamp
-                } else {
-                    i64::MIN
-                };
+            if let (Some((p, since)), true) = (square_mark(op, el), self.clip.is_some()) {
                 self.squares.mark(p, since);
             }
             if el.tags.is_empty() {
@@ -1114,10 +1141,13 @@ impl Writer<'_, '_> {
         };
         if is_node && op.is_some() {
             if let Some(p) = pos {
-                // A created node marks its square from its creation; a node first met in an
-                // edit existed before the data.
+                // A created node marks its square from its creation (on the parser's thread,
+                // see [`square_mark`], unless clipping); a node first met in an edit existed
+                // before the data.
                 if op == Some(Op::Create) {
-                    self.squares.mark(p, el.timestamp);
+                    if self.clip.is_some() {
+                        self.squares.mark(p, el.timestamp);
+                    }
                 } else if prev.is_none() {
                     self.squares.mark(p, i64::MIN);
                 }

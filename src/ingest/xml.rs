@@ -591,9 +591,7 @@ fn int(v: &str) -> Result<i64, Fallback> {
 /// within a few units of 2^-52 relative of an integer below 2^31. Other forms (exponents, more
 /// decimals, a `+` sign, spaces) go to the general path.
 fn e7(v: &str) -> Result<i64, Fallback> {
-    const SCALE: [i64; 8] = [
-        10_000_000, 1_000_000, 100_000, 10_000, 1_000, 100, 10, 1,
-    ];
+    const SCALE: [i64; 8] = [10_000_000, 1_000_000, 100_000, 10_000, 1_000, 100, 10, 1];
     let b = v.as_bytes();
     let (negative, rest) = match b.split_first() {
         Some((b'-', rest)) => (true, rest),
@@ -1206,9 +1204,29 @@ mod tests {
     fn fixed_point_coordinates_match_the_f64_path() {
         // Edge cases: signs, zero, the limits, more decimals than 7, other number forms.
         for s in [
-            "-0.0000001", "0.0000001", "90", "-90", "90.0000000", "89.9999999", "-0", "0",
-            "0.5", "12.3456785", "1.0000005", "45.1", "007.1234567", "5.", ".5", "-.5",
-            "+1.5", " 1.5", "1e-3", "1E2", "0000.5", "90.0000001", "1.23456785",
+            "-0.0000001",
+            "0.0000001",
+            "90",
+            "-90",
+            "90.0000000",
+            "89.9999999",
+            "-0",
+            "0",
+            "0.5",
+            "12.3456785",
+            "1.0000005",
+            "45.1",
+            "007.1234567",
+            "5.",
+            ".5",
+            "-.5",
+            "+1.5",
+            " 1.5",
+            "1e-3",
+            "1E2",
+            "0000.5",
+            "90.0000001",
+            "1.23456785",
         ] {
             match e7(s) {
                 Ok(_) => assert_eq!(both_ways(s).0, both_ways(s).1, "{s}"),
@@ -1243,9 +1261,22 @@ mod tests {
     #[test]
     fn integers_match_the_standard_parser() {
         for s in [
-            "0", "-0", "1", "-1", "123456789012345678", "-123456789012345678",
-            "9223372036854775807", "-9223372036854775808", "9223372036854775808", "+5", " 5",
-            "5 ", "", "-", "1a", "１",
+            "0",
+            "-0",
+            "1",
+            "-1",
+            "123456789012345678",
+            "-123456789012345678",
+            "9223372036854775807",
+            "-9223372036854775808",
+            "9223372036854775808",
+            "+5",
+            " 5",
+            "5 ",
+            "",
+            "-",
+            "1a",
+            "１",
         ] {
             assert_eq!(int(s).ok(), s.trim().parse::<i64>().ok(), "{s:?}");
         }
@@ -1260,9 +1291,8 @@ mod tests {
             for m in 0..=13 {
                 for d in 0..=32 {
                     let s = format!("{y:04}-{m:02}-{d:02}T23:59:07Z");
-                    let expected = chrono::NaiveDate::from_ymd_opt(y, m, d).map(|date| {
-                        date.signed_duration_since(epoch).num_days() * 86_400 + 86_347
-                    });
+                    let expected = chrono::NaiveDate::from_ymd_opt(y, m, d)
+                        .map(|date| date.signed_duration_since(epoch).num_days() * 86_400 + 86_347);
                     assert_eq!(parse_timestamp(&s), expected, "{s}");
                     valid += usize::from(expected.is_some());
                 }
@@ -1287,9 +1317,35 @@ mod tests {
             r#"changeset id="11" created_at="2026-01-01T00:00:00Z" open="true""#,
         ];
         let tokens = [
-            " min_lat=\"95\"", " closed_at=\"x\"", " ", "\t", "\n", "\r", "=", "\"", "'", "&amp;", "&lt;", "&bogus;", "&", " id=\"2\"",
-            " k=\"k\"", " ref=\"1\"", " lat=\"1e-3\"", "x", "-", "+", ".", "0", "9", "é",
-            " a='\"'", "\u{1}", "99999999999999999999", " type=\"node\"", " v=\"v\"",
+            " min_lat=\"95\"",
+            " closed_at=\"x\"",
+            " ",
+            "\t",
+            "\n",
+            "\r",
+            "=",
+            "\"",
+            "'",
+            "&amp;",
+            "&lt;",
+            "&bogus;",
+            "&",
+            " id=\"2\"",
+            " k=\"k\"",
+            " ref=\"1\"",
+            " lat=\"1e-3\"",
+            "x",
+            "-",
+            "+",
+            ".",
+            "0",
+            "9",
+            "é",
+            " a='\"'",
+            "\u{1}",
+            "99999999999999999999",
+            " type=\"node\"",
+            " v=\"v\"",
         ];
         let mut rng = Rng(11);
         let mut out: Vec<String> = bases.iter().map(|s| (*s).to_owned()).collect();
@@ -1352,9 +1408,21 @@ mod tests {
                     let (mut a, mut b) = (RawElement::default(), RawElement::default());
                     let (mut ca, mut cb) = (RawChangeset::default(), RawChangeset::default());
                     let mut spare = vec![("old".to_owned(), "strings".to_owned())];
-                    let tags = if in_changeset { &mut ca.tags } else { &mut a.tags };
-                    if child_fast(&e, name, in_changeset, &mut a.refs, &mut a.members, tags, &mut spare)
-                        .is_ok()
+                    let tags = if in_changeset {
+                        &mut ca.tags
+                    } else {
+                        &mut a.tags
+                    };
+                    if child_fast(
+                        &e,
+                        name,
+                        in_changeset,
+                        &mut a.refs,
+                        &mut a.members,
+                        tags,
+                        &mut spare,
+                    )
+                    .is_ok()
                     {
                         fast += 1;
                         let general = child(&e, name, &mut b, &mut cb, in_changeset);
@@ -1369,6 +1437,3 @@ mod tests {
         assert!(fast > total / 5 && fast < total / 2, "{fast} of {total}");
     }
 }
-
-
-
