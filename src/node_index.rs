@@ -652,7 +652,7 @@ impl NodeIndexTx {
         if self.tail.last().is_none_or(|l| id > l.0)
             && (id > self.overlay_max || !self.overlay.contains_key(&id))
         {
-            if self.tail.len() % FENCE == 0 {
+            if self.tail.len().is_multiple_of(FENCE) {
                 self.fence.push(id);
             }
             self.tail.push((id, entry));

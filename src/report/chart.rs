@@ -169,9 +169,9 @@ fn nice_step(max: u64) -> u64 {
 fn tick_label(v: u64, axis_top: u64) -> String {
     if v == 0 {
         "0".to_owned()
-    } else if axis_top >= 10_000_000 && v % 1_000_000 == 0 {
+    } else if axis_top >= 10_000_000 && v.is_multiple_of(1_000_000) {
         format!("{}M", group_thousands(v / 1_000_000))
-    } else if axis_top >= 10_000 && v % 1000 == 0 {
+    } else if axis_top >= 10_000 && v.is_multiple_of(1000) {
         format!("{}k", group_thousands(v / 1000))
     } else {
         group_thousands(v)
@@ -282,7 +282,7 @@ pub(super) fn weekly_svg(series: &Weekly<'_>, report_week: &str, region_name: &s
     let every = n.div_ceil(MAX_X_LABELS).max(1);
     for (i, w) in weeks.iter().enumerate() {
         let near_highlight = i != highlight && i.abs_diff(highlight) < every;
-        if i == highlight || ((n - 1 - i) % every == 0 && !near_highlight) {
+        if i == highlight || ((n - 1 - i).is_multiple_of(every) && !near_highlight) {
             let class = if i == highlight {
                 "tick strong"
             } else {
