@@ -163,12 +163,22 @@ const GRID_Y0: f64 = -18.0;
 const GRID_NX: usize = 170;
 const GRID_NY: usize = 180;
 
+/// Below this many entries a cell's hidden items are left in place.
+const COMPACT_MIN: u32 = 16;
+
 /// The map.
 pub(super) struct World {
     pub nodes: Vec<Node>,
     pub ways: Vec<Way>,
     pub relations: Vec<Relation>,
+    /// Indexed items by grid cell, in the order they were added.
     cells: Vec<Vec<Item>>,
+    /// Per cell: how many of its entries are hidden (deleted) items.
+    hidden: Vec<u32>,
+    /// Per indexed node, the cell it was indexed in (`u32::MAX`: not indexed).
+    node_cell: Vec<u32>,
+    /// Per way, the cell it was indexed in (`u32::MAX`: outside the grid).
+    way_cell: Vec<u32>,
 }
 
 fn cell_xy(p: P) -> Option<(usize, usize)> {
@@ -196,6 +206,9 @@ impl World {
             ways: Vec::new(),
             relations: Vec::new(),
             cells: (0..GRID_NX * GRID_NY).map(|_| Vec::new()).collect(),
+            hidden: vec![0; GRID_NX * GRID_NY],
+            node_cell: Vec::new(),
+            way_cell: Vec::new(),
         }
     }
 
@@ -250,9 +263,43 @@ impl World {
         }
     }
 
-    fn index(&mut self, p: P, it: Item) {
-        if let Some((x, y)) = cell_xy(p) {
-            self.cells[y * GRID_NX + x].push(it);
+    /// Puts an item in the cell of `p`; returns the cell, `u32::MAX` outside the grid.
+    fn index(&mut self, p: P, it: Item) -> u32 {
+        match cell_xy(p) {
+            Some((x, y)) => {
+                let c = y * GRID_NX + x;
+                self.cells[c].push(it);
+                idx(c)
+            }
+            None => u32::MAX,
+        }
+    }
+
+    /// Makes an item invisible (deleted). Its cell drops hidden entries once they are half of
+    /// it, keeping the order of the rest, so [`World::near`] does not keep scanning the dead.
+    fn hide(&mut self, it: Item) {
+        let cell = match it {
+            Item::Node(n) => {
+                self.nodes[n as usize].visible = false;
+                self.node_cell.get(n as usize).copied()
+            }
+            Item::Way(w) => {
+                self.ways[w as usize].visible = false;
+                self.way_cell.get(w as usize).copied()
+            }
+        };
+        let Some(c) = cell.map(|c| c as usize).filter(|&c| c < self.cells.len()) else {
+            return;
+        };
+        self.hidden[c] += 1;
+        let len = idx(self.cells[c].len());
+        if self.hidden[c] >= COMPACT_MIN && self.hidden[c] * 2 >= len {
+            let (nodes, ways) = (&self.nodes, &self.ways);
+            self.cells[c].retain(|&it| match it {
+                Item::Node(n) => nodes[n as usize].visible,
+                Item::Way(w) => ways[w as usize].visible,
+            });
+            self.hidden[c] = 0;
         }
     }
 
@@ -270,9 +317,12 @@ impl World {
             kind,
             incident: false,
         });
-        if kind != Kind::Vertex {
-            self.index(p, Item::Node(i));
-        }
+        let cell = if kind == Kind::Vertex {
+            u32::MAX
+        } else {
+            self.index(p, Item::Node(i))
+        };
+        self.node_cell.push(cell);
         i
     }
 
@@ -295,7 +345,8 @@ impl World {
             incident: false,
         });
         let p = self.way_p(i);
-        self.index(p, Item::Way(i));
+        let cell = self.index(p, Item::Way(i));
+        self.way_cell.push(cell);
         i
     }
 
@@ -317,6 +368,9 @@ impl World {
         else {
             return Vec::new();
         };
+        // `dist(p) <= r` decided on squared distances, with `hypot` itself only within a
+        // relative 1e-9 of the radius, where rounding could tell the two apart.
+        let (inside, outside) = (r * r * (1.0 - 1e-9), r * r * (1.0 + 1e-9));
         let mut out = Vec::new();
         for y in y0..=y1 {
             for x in x0..=x1 {
@@ -325,7 +379,13 @@ impl World {
                         Item::Node(n) => self.node(n).visible,
                         Item::Way(w) => self.way(w).visible,
                     };
-                    if visible && keep(self, it) && self.item_p(it).dist(p) <= r {
+                    if !visible || !keep(self, it) {
+                        continue;
+                    }
+                    let q = self.item_p(it);
+                    let (dx, dy) = (q.x - p.x, q.y - p.y);
+                    let d2 = dx * dx + dy * dy;
+                    if d2 <= inside || (d2 <= outside && q.dist(p) <= r) {
                         out.push(it);
                     }
                 }
@@ -529,9 +589,9 @@ impl<'a> Session<'a> {
         // About 30% of deleted nodes are written without their last position, as real diffs
         // sometimes are; the choice depends only on the id and the seed.
         let coords = mix(self.salt ^ i as u64) % 100 >= 30;
+        self.world.hide(Item::Node(i));
         let n = &mut self.world.nodes[i as usize];
         n.meta = meta;
-        n.visible = false;
         n.incident = self.incident;
         self.account_node(i);
         self.write_node(Op::Delete, i, coords)
@@ -543,9 +603,9 @@ impl<'a> Session<'a> {
         // The box of a way deletion still covers its nodes, so account before hiding it.
         let meta = self.meta(self.world.way(i).meta.version + 1);
         self.account_way(i);
+        self.world.hide(Item::Way(i));
         let w = &mut self.world.ways[i as usize];
         w.meta = meta;
-        w.visible = false;
         w.incident = self.incident;
         let mut nodes = w.nodes.clone();
         self.write_way(Op::Delete, i)?;
