@@ -10,6 +10,7 @@ use super::sample::mix;
 use super::xml::DiffWriter;
 use super::DemoError;
 use crate::model::Op;
+use std::collections::HashMap;
 
 /// First snapshot node id; new nodes continue after the snapshot's.
 pub(super) const NODE_BASE: i64 = 50_000_000_000;
@@ -179,6 +180,12 @@ pub(super) struct World {
     node_cell: Vec<u32>,
     /// Per way, the cell it was indexed in (`u32::MAX`: outside the grid).
     way_cell: Vec<u32>,
+    /// Per way, its centre ([`World::way_p`]), recomputed whenever its nodes change or move.
+    way_centre: Vec<P>,
+    /// Per node, the first way that used it (`u32::MAX`: none).
+    node_way: Vec<u32>,
+    /// The further ways of nodes used by more than one way.
+    node_more_ways: HashMap<u32, Vec<u32>>,
 }
 
 fn cell_xy(p: P) -> Option<(usize, usize)> {
@@ -209,6 +216,9 @@ impl World {
             hidden: vec![0; GRID_NX * GRID_NY],
             node_cell: Vec::new(),
             way_cell: Vec::new(),
+            way_centre: Vec::new(),
+            node_way: Vec::new(),
+            node_more_ways: HashMap::new(),
         }
     }
 
@@ -255,11 +265,46 @@ impl World {
         P::new(x / k, y / k)
     }
 
-    /// Where an item is.
+    /// Where an item is (a way: its kept centre, equal to [`World::way_p`]).
     pub fn item_p(&self, it: Item) -> P {
         match it {
             Item::Node(n) => self.node_p(n),
-            Item::Way(w) => self.way_p(w),
+            Item::Way(w) => self
+                .way_centre
+                .get(w as usize)
+                .copied()
+                .unwrap_or_else(|| self.way_p(w)),
+        }
+    }
+
+    /// Records that way `w` uses node `n`.
+    fn link(&mut self, n: u32, w: u32) {
+        match self.node_way.get_mut(n as usize) {
+            Some(first) if *first == u32::MAX => *first = w,
+            Some(first) if *first == w => {}
+            Some(_) => self.node_more_ways.entry(n).or_default().push(w),
+            None => {}
+        }
+    }
+
+    /// Recomputes a way's kept centre.
+    fn refresh_way(&mut self, w: u32) {
+        let p = self.way_p(w);
+        if let Some(c) = self.way_centre.get_mut(w as usize) {
+            *c = p;
+        }
+    }
+
+    /// Recomputes the centres of the ways that use node `n`, after it moved.
+    fn node_moved(&mut self, n: u32) {
+        if let Some(&first) = self.node_way.get(n as usize) {
+            if first != u32::MAX {
+                self.refresh_way(first);
+            }
+        }
+        let more = self.node_more_ways.get(&n).cloned().unwrap_or_default();
+        for w in more {
+            self.refresh_way(w);
         }
     }
 
@@ -323,6 +368,7 @@ impl World {
             self.index(p, Item::Node(i))
         };
         self.node_cell.push(cell);
+        self.node_way.push(u32::MAX);
         i
     }
 
@@ -334,6 +380,7 @@ impl World {
         seen.dedup();
         for &n in &seen {
             self.nodes[n as usize].refs += 1;
+            self.link(n, i);
         }
         self.ways.push(Way {
             nodes,
@@ -345,6 +392,7 @@ impl World {
             incident: false,
         });
         let p = self.way_p(i);
+        self.way_centre.push(p);
         let cell = self.index(p, Item::Way(i));
         self.way_cell.push(cell);
         i
@@ -550,9 +598,13 @@ impl<'a> Session<'a> {
             self.meta(n.meta.version + 1)
         };
         let n = &mut self.world.nodes[i as usize];
+        let was = (n.lat, n.lon);
         f(n);
         n.meta = meta;
         n.incident = self.incident;
+        if (n.lat, n.lon) != was {
+            self.world.node_moved(i);
+        }
         self.account_node(i);
         self.write_node(Op::Modify, i, true)
     }
@@ -578,7 +630,9 @@ impl<'a> Session<'a> {
         w.meta = meta;
         if new_ref {
             self.world.nodes[node as usize].refs += 1;
+            self.world.link(node, i);
         }
+        self.world.refresh_way(i);
         self.account_way(i);
         self.write_way(Op::Modify, i)
     }
