@@ -164,6 +164,15 @@ const GRID_Y0: f64 = -18.0;
 const GRID_NX: usize = 170;
 const GRID_NY: usize = 180;
 
+/// An indexed item and where it is now ([`World::item_p`]), so that [`World::near`] measures
+/// distances without visiting the item.
+#[derive(Debug, Clone, Copy)]
+struct Entry {
+    it: Item,
+    x: f64,
+    y: f64,
+}
+
 /// Below this many entries a cell's hidden items are left in place.
 const COMPACT_MIN: u32 = 16;
 
@@ -173,7 +182,7 @@ pub(super) struct World {
     pub ways: Vec<Way>,
     pub relations: Vec<Relation>,
     /// Indexed items by grid cell, in the order they were added.
-    cells: Vec<Vec<Item>>,
+    cells: Vec<Vec<Entry>>,
     /// Per cell: how many of its entries are hidden (deleted) items.
     hidden: Vec<u32>,
     /// Per indexed node, the cell it was indexed in (`u32::MAX`: not indexed).
@@ -293,10 +302,12 @@ impl World {
         if let Some(c) = self.way_centre.get_mut(w as usize) {
             *c = p;
         }
+        self.reposition(Item::Way(w));
     }
 
     /// Recomputes the centres of the ways that use node `n`, after it moved.
     fn node_moved(&mut self, n: u32) {
+        self.reposition(Item::Node(n));
         if let Some(&first) = self.node_way.get(n as usize) {
             if first != u32::MAX {
                 self.refresh_way(first);
@@ -313,10 +324,27 @@ impl World {
         match cell_xy(p) {
             Some((x, y)) => {
                 let c = y * GRID_NX + x;
-                self.cells[c].push(it);
+                let q = self.item_p(it);
+                self.cells[c].push(Entry { it, x: q.x, y: q.y });
                 idx(c)
             }
             None => u32::MAX,
+        }
+    }
+
+    /// Updates the position kept in an indexed item's entry after it moved.
+    fn reposition(&mut self, it: Item) {
+        let cell = match it {
+            Item::Node(n) => self.node_cell.get(n as usize).copied(),
+            Item::Way(w) => self.way_cell.get(w as usize).copied(),
+        };
+        let Some(c) = cell.map(|c| c as usize).filter(|&c| c < self.cells.len()) else {
+            return;
+        };
+        let q = self.item_p(it);
+        if let Some(e) = self.cells[c].iter_mut().find(|e| e.it == it) {
+            e.x = q.x;
+            e.y = q.y;
         }
     }
 
@@ -340,7 +368,7 @@ impl World {
         let len = idx(self.cells[c].len());
         if self.hidden[c] >= COMPACT_MIN && self.hidden[c] * 2 >= len {
             let (nodes, ways) = (&self.nodes, &self.ways);
-            self.cells[c].retain(|&it| match it {
+            self.cells[c].retain(|e| match e.it {
                 Item::Node(n) => nodes[n as usize].visible,
                 Item::Way(w) => ways[w as usize].visible,
             });
@@ -352,6 +380,7 @@ impl World {
     pub fn add_node(&mut self, p: P, tags: Tags, kind: Kind, meta: Meta) -> u32 {
         let (lat, lon) = p.to_e7();
         let i = idx(self.nodes.len());
+        self.node_way.push(u32::MAX);
         self.nodes.push(Node {
             lat,
             lon,
@@ -368,7 +397,6 @@ impl World {
             self.index(p, Item::Node(i))
         };
         self.node_cell.push(cell);
-        self.node_way.push(u32::MAX);
         i
     }
 
@@ -419,22 +447,23 @@ impl World {
         // `dist(p) <= r` decided on squared distances, with `hypot` itself only within a
         // relative 1e-9 of the radius, where rounding could tell the two apart.
         let (inside, outside) = (r * r * (1.0 - 1e-9), r * r * (1.0 + 1e-9));
+        // The tests are pure, so testing the distance first (on the entry, without visiting the
+        // item) keeps the result and its order.
         let mut out = Vec::new();
         for y in y0..=y1 {
             for x in x0..=x1 {
-                for &it in &self.cells[y * GRID_NX + x] {
-                    let visible = match it {
+                for e in &self.cells[y * GRID_NX + x] {
+                    let (dx, dy) = (e.x - p.x, e.y - p.y);
+                    let d2 = dx * dx + dy * dy;
+                    if d2 > outside || (d2 > inside && P::new(e.x, e.y).dist(p) > r) {
+                        continue;
+                    }
+                    let visible = match e.it {
                         Item::Node(n) => self.node(n).visible,
                         Item::Way(w) => self.way(w).visible,
                     };
-                    if !visible || !keep(self, it) {
-                        continue;
-                    }
-                    let q = self.item_p(it);
-                    let (dx, dy) = (q.x - p.x, q.y - p.y);
-                    let d2 = dx * dx + dy * dy;
-                    if d2 <= inside || (d2 <= outside && q.dist(p) <= r) {
-                        out.push(it);
+                    if visible && keep(self, e.it) {
+                        out.push(e.it);
                     }
                 }
             }
