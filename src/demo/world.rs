@@ -106,6 +106,20 @@ pub(super) struct Relation {
     pub tags: Tags,
 }
 
+/// Every kind, for [`World::near`] when `keep` looks at something else.
+pub(super) const ALL_KINDS: [Kind; 10] = [
+    Kind::Vertex,
+    Kind::Poi,
+    Kind::Shop,
+    Kind::Seamark,
+    Kind::Place,
+    Kind::Building,
+    Kind::Street,
+    Kind::Path,
+    Kind::Landuse,
+    Kind::Outline,
+];
+
 /// A node or way, by index.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(super) enum Item {
@@ -169,6 +183,7 @@ const GRID_NY: usize = 180;
 #[derive(Debug, Clone, Copy)]
 struct Entry {
     it: Item,
+    kind: Kind,
     x: f64,
     y: f64,
 }
@@ -325,7 +340,16 @@ impl World {
             Some((x, y)) => {
                 let c = y * GRID_NX + x;
                 let q = self.item_p(it);
-                self.cells[c].push(Entry { it, x: q.x, y: q.y });
+                let kind = match it {
+                    Item::Node(n) => self.node(n).kind,
+                    Item::Way(w) => self.way(w).kind,
+                };
+                self.cells[c].push(Entry {
+                    it,
+                    kind,
+                    x: q.x,
+                    y: q.y,
+                });
                 idx(c)
             }
             None => u32::MAX,
@@ -438,8 +462,15 @@ impl World {
         });
     }
 
-    /// Visible items within `r` km of `p` that `keep` accepts, nearest cells first.
-    pub fn near(&self, p: P, r: f64, keep: impl Fn(&Self, Item) -> bool) -> Vec<Item> {
+    /// Visible items of the given kinds within `r` km of `p` that `keep` accepts, nearest cells
+    /// first. `kinds` only spares visiting items `keep` would refuse anyway.
+    pub fn near(
+        &self,
+        p: P,
+        r: f64,
+        kinds: &[Kind],
+        keep: impl Fn(&Self, Item) -> bool,
+    ) -> Vec<Item> {
         let (Some((x0, y0)), Some((x1, y1))) = (cell_xy(p.offset(-r, -r)), cell_xy(p.offset(r, r)))
         else {
             return Vec::new();
@@ -453,6 +484,9 @@ impl World {
         for y in y0..=y1 {
             for x in x0..=x1 {
                 for e in &self.cells[y * GRID_NX + x] {
+                    if !kinds.contains(&e.kind) {
+                        continue;
+                    }
                     let (dx, dy) = (e.x - p.x, e.y - p.y);
                     let d2 = dx * dx + dy * dy;
                     if d2 > outside || (d2 > inside && P::new(e.x, e.y).dist(p) > r) {
