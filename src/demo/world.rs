@@ -740,3 +740,137 @@ impl<'a> Session<'a> {
         Ok(deleted)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    use super::*;
+
+    const META: Meta = Meta {
+        version: 1,
+        ts: 0,
+        cs: 1,
+        user: 0,
+    };
+
+    /// The plain search over every item ever indexed, with way centres averaged afresh.
+    fn near_by_scan(
+        w: &World,
+        indexed: &[(usize, Item)],
+        p: P,
+        r: f64,
+        keep: impl Fn(&World, Item) -> bool,
+    ) -> Vec<Item> {
+        let (Some((x0, y0)), Some((x1, y1))) = (cell_xy(p.offset(-r, -r)), cell_xy(p.offset(r, r)))
+        else {
+            return Vec::new();
+        };
+        let mut out = Vec::new();
+        for y in y0..=y1 {
+            for x in x0..=x1 {
+                for &(c, it) in indexed {
+                    if c != y * GRID_NX + x {
+                        continue;
+                    }
+                    let (visible, q) = match it {
+                        Item::Node(n) => (w.node(n).visible, w.node_p(n)),
+                        Item::Way(v) => (w.way(v).visible, w.way_p(v)),
+                    };
+                    if visible && keep(w, it) && q.dist(p) <= r {
+                        out.push(it);
+                    }
+                }
+            }
+        }
+        out
+    }
+
+    fn random_p(rng: &mut ChaCha8Rng) -> P {
+        P::new(rng.gen_range(-2.0..2.0), rng.gen_range(-2.0..2.0))
+    }
+
+    #[test]
+    fn near_matches_a_plain_scan_after_deletions_and_moves() {
+        // Common practice, no source: the indexed search against brute force on random data.
+        let mut rng = ChaCha8Rng::seed_from_u64(11);
+        let mut w = World::new();
+        let mut indexed: Vec<(usize, Item)> = Vec::new();
+        let mut pois = Vec::new();
+        let mut vertices = Vec::new();
+        for _ in 0..3000 {
+            let p = random_p(&mut rng);
+            let kind = if rng.gen_bool(0.4) {
+                Kind::Vertex
+            } else {
+                Kind::Poi
+            };
+            let n = w.add_node(p, Vec::new(), kind, META);
+            if kind == Kind::Vertex {
+                vertices.push(n);
+            } else if let Some((x, y)) = cell_xy(p) {
+                indexed.push((y * GRID_NX + x, Item::Node(n)));
+                pois.push(n);
+            }
+        }
+        let mut ways = Vec::new();
+        for _ in 0..800 {
+            let k = rng.gen_range(2..6);
+            let nodes: Vec<u32> = (0..k)
+                .map(|_| vertices[rng.gen_range(0..vertices.len())])
+                .collect();
+            let kind = if rng.gen_bool(0.5) {
+                Kind::Building
+            } else {
+                Kind::Street
+            };
+            let v = w.add_way(nodes, Vec::new(), kind, META);
+            if let Some((x, y)) = cell_xy(w.way_p(v)) {
+                indexed.push((y * GRID_NX + x, Item::Way(v)));
+            }
+            ways.push(v);
+        }
+        let mut found = 0;
+        for round in 0..400 {
+            match rng.gen_range(0..4) {
+                0 => w.hide(Item::Node(pois[rng.gen_range(0..pois.len())])),
+                1 => w.hide(Item::Way(ways[rng.gen_range(0..ways.len())])),
+                2 => {
+                    // A shared vertex or a point moves some way off.
+                    let n = if rng.gen_bool(0.5) {
+                        vertices[rng.gen_range(0..vertices.len())]
+                    } else {
+                        pois[rng.gen_range(0..pois.len())]
+                    };
+                    let (lat, lon) = random_p(&mut rng).to_e7();
+                    w.nodes[n as usize].lat = lat;
+                    w.nodes[n as usize].lon = lon;
+                    w.node_moved(n);
+                }
+                _ => {
+                    let v = ways[rng.gen_range(0..ways.len())];
+                    let n = vertices[rng.gen_range(0..vertices.len())];
+                    w.ways[v as usize].nodes.insert(1, n);
+                    w.link(n, v);
+                    w.refresh_way(v);
+                }
+            }
+            let p = random_p(&mut rng);
+            let r = rng.gen_range(0.05..0.8);
+            let kinds: &[Kind] = if round % 2 == 0 {
+                &[Kind::Building]
+            } else {
+                &ALL_KINDS
+            };
+            let keep = |w: &World, it: Item| match it {
+                Item::Node(_) => round % 2 == 1,
+                Item::Way(v) => w.way(v).kind == Kind::Building,
+            };
+            let got = w.near(p, r, kinds, keep);
+            assert_eq!(got, near_by_scan(&w, &indexed, p, r, keep), "round {round}");
+            found += got.len();
+        }
+        assert!(found > 1000, "the queries found only {found} items");
+    }
+}
