@@ -255,7 +255,7 @@ impl Work<'_, '_> {
     fn candidates(&self, focus: P, r: f64, kinds: &[Kind]) -> Vec<Item> {
         self.s
             .world
-            .near(focus, r, |w, it| match it {
+            .near(focus, r, kinds, |w, it| match it {
                 Item::Node(n) => kinds.contains(&w.node(n).kind) && w.node(n).refs == 0,
                 Item::Way(x) => kinds.contains(&w.way(x).kind),
             })
@@ -399,10 +399,13 @@ impl Work<'_, '_> {
     }
 
     fn paths(&mut self, area: Area, focus: P, n: usize) -> Result<(), DemoError> {
-        let streets = self.s.world.near(focus, 0.3, |w, it| match it {
-            Item::Way(x) => w.way(x).kind == Kind::Street,
-            Item::Node(_) => false,
-        });
+        let streets = self
+            .s
+            .world
+            .near(focus, 0.3, &[Kind::Street], |w, it| match it {
+                Item::Way(x) => w.way(x).kind == Kind::Street,
+                Item::Node(_) => false,
+            });
         let (highway, step) = match area {
             Area::Countryside => ("track", (0.06, 0.12)),
             Area::Village(_) => ("path", (0.03, 0.06)),

@@ -252,7 +252,12 @@ fn burst_targets(world: &World, rng: &mut ChaCha8Rng) -> Vec<Vec<Item>> {
             }
         }
     };
-    let mut all = world.near(BURST_CENTRE, 0.4, deletable);
+    let mut all = world.near(
+        BURST_CENTRE,
+        0.4,
+        &[Kind::Building, Kind::Path, Kind::Poi],
+        deletable,
+    );
     let d = |it: Item| world.item_p(it).dist(BURST_CENTRE);
     all.sort_by(|&a, &b| d(a).total_cmp(&d(b)));
     // Footpaths and points first (within 300 m), then the nearest buildings to fill up.
@@ -280,7 +285,7 @@ fn spam_targets(world: &World, rng: &mut ChaCha8Rng) -> Result<Vec<Vec<u32>>, De
     let cx = rng.gen_range(-5.0..-4.7);
     let at = P::new(cx, grid_y(MAIN_STREET_ROW));
     let mut shops: Vec<u32> = world
-        .near(at, 1.0, |w, it| match it {
+        .near(at, 1.0, &[Kind::Shop], |w, it| match it {
             Item::Node(x) => w.node(x).kind == Kind::Shop && !w.node(x).incident,
             Item::Way(_) => false,
         })
@@ -411,10 +416,16 @@ pub(super) fn run(
             // Deletions hit stand-alone points when there are any, so the surge stays a surge
             // of new accounts and does not also look like a deletion burst.
             let pick = |s: &Session<'_>, rng: &mut ChaCha8Rng, points_only: bool| {
-                let mut c = s.world.near(v.centre, 0.5, |w, it| match it {
-                    Item::Node(x) => w.node(x).kind == Kind::Poi && w.node(x).refs == 0,
-                    Item::Way(x) => w.way(x).kind == Kind::Building && !w.way(x).in_rel,
-                });
+                let mut c =
+                    s.world.near(
+                        v.centre,
+                        0.5,
+                        &[Kind::Poi, Kind::Building],
+                        |w, it| match it {
+                            Item::Node(x) => w.node(x).kind == Kind::Poi && w.node(x).refs == 0,
+                            Item::Way(x) => w.way(x).kind == Kind::Building && !w.way(x).in_rel,
+                        },
+                    );
                 c.retain(|&it| s.free(it));
                 if points_only && c.iter().any(|it| matches!(it, Item::Node(_))) {
                     c.retain(|it| matches!(it, Item::Node(_)));

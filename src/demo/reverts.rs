@@ -20,7 +20,7 @@ use super::geography::{jitter, Area, Geo, P, VILLAGES};
 use super::names::{Names, EDITORS};
 use super::people::{People, Role, DAY};
 use super::sample::choose_n;
-use super::world::{set_tag, tag, Item, Kind, Session, Tags};
+use super::world::{set_tag, tag, Item, Kind, Session, Tags, ALL_KINDS};
 use super::{timed, DemoError};
 
 /// How an earlier case damaged the map.
@@ -318,7 +318,7 @@ pub(super) fn plan(
 /// Free named points (shops and amenities) near `focus`.
 fn named_points(s: &Session<'_>, focus: P, r: f64) -> Vec<u32> {
     s.world
-        .near(focus, r, |w, it| match it {
+        .near(focus, r, &[Kind::Poi, Kind::Shop], |w, it| match it {
             Item::Node(x) => {
                 let n = w.node(x);
                 matches!(n.kind, Kind::Poi | Kind::Shop)
@@ -363,7 +363,7 @@ pub(super) fn run(
                 Damage::StripTags => {
                     let mut pool: Vec<Item> = s
                         .world
-                        .near(focus, 0.8, |w, it| match it {
+                        .near(focus, 0.8, &ALL_KINDS, |w, it| match it {
                             Item::Node(x) => w.node(x).refs == 0 && w.node(x).tags.len() >= 4,
                             Item::Way(x) => w.way(x).tags.len() >= 4 && !w.way(x).in_rel,
                         })
@@ -427,6 +427,7 @@ pub(super) fn run(
                 .near(
                     focus,
                     0.5,
+                    &[Kind::Building],
                     |w, it| matches!(it, Item::Way(x) if w.way(x).kind == Kind::Building),
                 )
                 .into_iter()

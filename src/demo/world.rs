@@ -10,6 +10,7 @@ use super::sample::mix;
 use super::xml::DiffWriter;
 use super::DemoError;
 use crate::model::Op;
+use std::collections::HashMap;
 
 /// First snapshot node id; new nodes continue after the snapshot's.
 pub(super) const NODE_BASE: i64 = 50_000_000_000;
@@ -105,6 +106,20 @@ pub(super) struct Relation {
     pub tags: Tags,
 }
 
+/// Every kind, for [`World::near`] when `keep` looks at something else.
+pub(super) const ALL_KINDS: [Kind; 10] = [
+    Kind::Vertex,
+    Kind::Poi,
+    Kind::Shop,
+    Kind::Seamark,
+    Kind::Place,
+    Kind::Building,
+    Kind::Street,
+    Kind::Path,
+    Kind::Landuse,
+    Kind::Outline,
+];
+
 /// A node or way, by index.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(super) enum Item {
@@ -163,12 +178,38 @@ const GRID_Y0: f64 = -18.0;
 const GRID_NX: usize = 170;
 const GRID_NY: usize = 180;
 
+/// An indexed item and where it is now ([`World::item_p`]), so that [`World::near`] measures
+/// distances without visiting the item.
+#[derive(Debug, Clone, Copy)]
+struct Entry {
+    it: Item,
+    kind: Kind,
+    x: f64,
+    y: f64,
+}
+
+/// Below this many entries a cell's hidden items are left in place.
+const COMPACT_MIN: u32 = 16;
+
 /// The map.
 pub(super) struct World {
     pub nodes: Vec<Node>,
     pub ways: Vec<Way>,
     pub relations: Vec<Relation>,
-    cells: Vec<Vec<Item>>,
+    /// Indexed items by grid cell, in the order they were added.
+    cells: Vec<Vec<Entry>>,
+    /// Per cell: how many of its entries are hidden (deleted) items.
+    hidden: Vec<u32>,
+    /// Per indexed node, the cell it was indexed in (`u32::MAX`: not indexed).
+    node_cell: Vec<u32>,
+    /// Per way, the cell it was indexed in (`u32::MAX`: outside the grid).
+    way_cell: Vec<u32>,
+    /// Per way, its centre ([`World::way_p`]), recomputed whenever its nodes change or move.
+    way_centre: Vec<P>,
+    /// Per node, the first way that used it (`u32::MAX`: none).
+    node_way: Vec<u32>,
+    /// The further ways of nodes used by more than one way.
+    node_more_ways: HashMap<u32, Vec<u32>>,
 }
 
 fn cell_xy(p: P) -> Option<(usize, usize)> {
@@ -196,6 +237,12 @@ impl World {
             ways: Vec::new(),
             relations: Vec::new(),
             cells: (0..GRID_NX * GRID_NY).map(|_| Vec::new()).collect(),
+            hidden: vec![0; GRID_NX * GRID_NY],
+            node_cell: Vec::new(),
+            way_cell: Vec::new(),
+            way_centre: Vec::new(),
+            node_way: Vec::new(),
+            node_more_ways: HashMap::new(),
         }
     }
 
@@ -242,17 +289,114 @@ impl World {
         P::new(x / k, y / k)
     }
 
-    /// Where an item is.
+    /// Where an item is (a way: its kept centre, equal to [`World::way_p`]).
     pub fn item_p(&self, it: Item) -> P {
         match it {
             Item::Node(n) => self.node_p(n),
-            Item::Way(w) => self.way_p(w),
+            Item::Way(w) => self
+                .way_centre
+                .get(w as usize)
+                .copied()
+                .unwrap_or_else(|| self.way_p(w)),
         }
     }
 
-    fn index(&mut self, p: P, it: Item) {
-        if let Some((x, y)) = cell_xy(p) {
-            self.cells[y * GRID_NX + x].push(it);
+    /// Records that way `w` uses node `n`.
+    fn link(&mut self, n: u32, w: u32) {
+        match self.node_way.get_mut(n as usize) {
+            Some(first) if *first == u32::MAX => *first = w,
+            Some(first) if *first == w => {}
+            Some(_) => self.node_more_ways.entry(n).or_default().push(w),
+            None => {}
+        }
+    }
+
+    /// Recomputes a way's kept centre.
+    fn refresh_way(&mut self, w: u32) {
+        let p = self.way_p(w);
+        if let Some(c) = self.way_centre.get_mut(w as usize) {
+            *c = p;
+        }
+        self.reposition(Item::Way(w));
+    }
+
+    /// Recomputes the centres of the ways that use node `n`, after it moved.
+    fn node_moved(&mut self, n: u32) {
+        self.reposition(Item::Node(n));
+        if let Some(&first) = self.node_way.get(n as usize) {
+            if first != u32::MAX {
+                self.refresh_way(first);
+            }
+        }
+        let more = self.node_more_ways.get(&n).cloned().unwrap_or_default();
+        for w in more {
+            self.refresh_way(w);
+        }
+    }
+
+    /// Puts an item in the cell of `p`; returns the cell, `u32::MAX` outside the grid.
+    fn index(&mut self, p: P, it: Item) -> u32 {
+        match cell_xy(p) {
+            Some((x, y)) => {
+                let c = y * GRID_NX + x;
+                let q = self.item_p(it);
+                let kind = match it {
+                    Item::Node(n) => self.node(n).kind,
+                    Item::Way(w) => self.way(w).kind,
+                };
+                self.cells[c].push(Entry {
+                    it,
+                    kind,
+                    x: q.x,
+                    y: q.y,
+                });
+                idx(c)
+            }
+            None => u32::MAX,
+        }
+    }
+
+    /// Updates the position kept in an indexed item's entry after it moved.
+    fn reposition(&mut self, it: Item) {
+        let cell = match it {
+            Item::Node(n) => self.node_cell.get(n as usize).copied(),
+            Item::Way(w) => self.way_cell.get(w as usize).copied(),
+        };
+        let Some(c) = cell.map(|c| c as usize).filter(|&c| c < self.cells.len()) else {
+            return;
+        };
+        let q = self.item_p(it);
+        if let Some(e) = self.cells[c].iter_mut().find(|e| e.it == it) {
+            e.x = q.x;
+            e.y = q.y;
+        }
+    }
+
+    /// Makes an item invisible (deleted). Its cell drops hidden entries once they are half of
+    /// it, keeping the order of the rest, so [`World::near`] does not keep scanning the dead.
+    fn hide(&mut self, it: Item) {
+        let cell = match it {
+            Item::Node(n) => {
+                self.nodes[n as usize].visible = false;
+                self.node_cell.get(n as usize).copied()
+            }
+            Item::Way(w) => {
+                self.ways[w as usize].visible = false;
+                self.way_cell.get(w as usize).copied()
+            }
+        };
+        let Some(c) = cell.map(|c| c as usize).filter(|&c| c < self.cells.len()) else {
+            return;
+        };
+        self.hidden[c] += 1;
+        let len = idx(self.cells[c].len());
+        if self.hidden[c] >= COMPACT_MIN && self.hidden[c] * 2 >= len {
+            let (nodes, ways) = (&self.nodes, &self.ways);
+            self.cells[c].retain(|e| match e.it {
+                Item::Node(n) => nodes[n as usize].visible,
+                Item::Way(w) => ways[w as usize].visible,
+            });
+            self.hidden[c] = 0;
         }
     }
 
@@ -260,6 +404,7 @@ impl World {
     pub fn add_node(&mut self, p: P, tags: Tags, kind: Kind, meta: Meta) -> u32 {
         let (lat, lon) = p.to_e7();
         let i = idx(self.nodes.len());
+        self.node_way.push(u32::MAX);
         self.nodes.push(Node {
             lat,
             lon,
@@ -270,9 +415,12 @@ impl World {
             kind,
             incident: false,
         });
-        if kind != Kind::Vertex {
-            self.index(p, Item::Node(i));
-        }
+        let cell = if kind == Kind::Vertex {
+            u32::MAX
+        } else {
+            self.index(p, Item::Node(i))
+        };
+        self.node_cell.push(cell);
         i
     }
 
@@ -284,6 +432,7 @@ impl World {
         seen.dedup();
         for &n in &seen {
             self.nodes[n as usize].refs += 1;
+            self.link(n, i);
         }
         self.ways.push(Way {
             nodes,
@@ -295,7 +444,9 @@ impl World {
             incident: false,
         });
         let p = self.way_p(i);
-        self.index(p, Item::Way(i));
+        self.way_centre.push(p);
+        let cell = self.index(p, Item::Way(i));
+        self.way_cell.push(cell);
         i
     }
 
@@ -311,22 +462,42 @@ impl World {
         });
     }
 
-    /// Visible items within `r` km of `p` that `keep` accepts, nearest cells first.
-    pub fn near(&self, p: P, r: f64, keep: impl Fn(&Self, Item) -> bool) -> Vec<Item> {
+    /// Visible items of the given kinds within `r` km of `p` that `keep` accepts, nearest cells
+    /// first. `kinds` only spares visiting items `keep` would refuse anyway.
+    pub fn near(
+        &self,
+        p: P,
+        r: f64,
+        kinds: &[Kind],
+        keep: impl Fn(&Self, Item) -> bool,
+    ) -> Vec<Item> {
         let (Some((x0, y0)), Some((x1, y1))) = (cell_xy(p.offset(-r, -r)), cell_xy(p.offset(r, r)))
         else {
             return Vec::new();
         };
+        // `dist(p) <= r` decided on squared distances, with `hypot` itself only within a
+        // relative 1e-9 of the radius, where rounding could tell the two apart.
+        let (inside, outside) = (r * r * (1.0 - 1e-9), r * r * (1.0 + 1e-9));
+        // The tests are pure, so testing the distance first (on the entry, without visiting the
+        // item) keeps the result and its order.
         let mut out = Vec::new();
         for y in y0..=y1 {
             for x in x0..=x1 {
-                for &it in &self.cells[y * GRID_NX + x] {
-                    let visible = match it {
+                for e in &self.cells[y * GRID_NX + x] {
+                    if !kinds.contains(&e.kind) {
+                        continue;
+                    }
+                    let (dx, dy) = (e.x - p.x, e.y - p.y);
+                    let d2 = dx * dx + dy * dy;
+                    if d2 > outside || (d2 > inside && P::new(e.x, e.y).dist(p) > r) {
+                        continue;
+                    }
+                    let visible = match e.it {
                         Item::Node(n) => self.node(n).visible,
                         Item::Way(w) => self.way(w).visible,
                     };
-                    if visible && keep(self, it) && self.item_p(it).dist(p) <= r {
-                        out.push(it);
+                    if visible && keep(self, e.it) {
+                        out.push(e.it);
                     }
                 }
             }
@@ -490,9 +661,13 @@ impl<'a> Session<'a> {
             self.meta(n.meta.version + 1)
         };
         let n = &mut self.world.nodes[i as usize];
+        let was = (n.lat, n.lon);
         f(n);
         n.meta = meta;
         n.incident = self.incident;
+        if (n.lat, n.lon) != was {
+            self.world.node_moved(i);
+        }
         self.account_node(i);
         self.write_node(Op::Modify, i, true)
     }
@@ -518,7 +693,9 @@ impl<'a> Session<'a> {
         w.meta = meta;
         if new_ref {
             self.world.nodes[node as usize].refs += 1;
+            self.world.link(node, i);
         }
+        self.world.refresh_way(i);
         self.account_way(i);
         self.write_way(Op::Modify, i)
     }
@@ -529,9 +706,9 @@ impl<'a> Session<'a> {
         // About 30% of deleted nodes are written without their last position, as real diffs
         // sometimes are; the choice depends only on the id and the seed.
         let coords = mix(self.salt ^ i as u64) % 100 >= 30;
+        self.world.hide(Item::Node(i));
         let n = &mut self.world.nodes[i as usize];
         n.meta = meta;
-        n.visible = false;
         n.incident = self.incident;
         self.account_node(i);
         self.write_node(Op::Delete, i, coords)
@@ -543,9 +720,9 @@ impl<'a> Session<'a> {
         // The box of a way deletion still covers its nodes, so account before hiding it.
         let meta = self.meta(self.world.way(i).meta.version + 1);
         self.account_way(i);
+        self.world.hide(Item::Way(i));
         let w = &mut self.world.ways[i as usize];
         w.meta = meta;
-        w.visible = false;
         w.incident = self.incident;
         let mut nodes = w.nodes.clone();
         self.write_way(Op::Delete, i)?;
@@ -561,5 +738,139 @@ impl<'a> Session<'a> {
             }
         }
         Ok(deleted)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    use super::*;
+
+    const META: Meta = Meta {
+        version: 1,
+        ts: 0,
+        cs: 1,
+        user: 0,
+    };
+
+    /// The plain search over every item ever indexed, with way centres averaged afresh.
+    fn near_by_scan(
+        w: &World,
+        indexed: &[(usize, Item)],
+        p: P,
+        r: f64,
+        keep: impl Fn(&World, Item) -> bool,
+    ) -> Vec<Item> {
+        let (Some((x0, y0)), Some((x1, y1))) = (cell_xy(p.offset(-r, -r)), cell_xy(p.offset(r, r)))
+        else {
+            return Vec::new();
+        };
+        let mut out = Vec::new();
+        for y in y0..=y1 {
+            for x in x0..=x1 {
+                for &(c, it) in indexed {
+                    if c != y * GRID_NX + x {
+                        continue;
+                    }
+                    let (visible, q) = match it {
+                        Item::Node(n) => (w.node(n).visible, w.node_p(n)),
+                        Item::Way(v) => (w.way(v).visible, w.way_p(v)),
+                    };
+                    if visible && keep(w, it) && q.dist(p) <= r {
+                        out.push(it);
+                    }
+                }
+            }
+        }
+        out
+    }
+
+    fn random_p(rng: &mut ChaCha8Rng) -> P {
+        P::new(rng.gen_range(-2.0..2.0), rng.gen_range(-2.0..2.0))
+    }
+
+    #[test]
+    fn near_matches_a_plain_scan_after_deletions_and_moves() {
+        // Common practice, no source: the indexed search against brute force on random data.
+        let mut rng = ChaCha8Rng::seed_from_u64(11);
+        let mut w = World::new();
+        let mut indexed: Vec<(usize, Item)> = Vec::new();
+        let mut pois = Vec::new();
+        let mut vertices = Vec::new();
+        for _ in 0..3000 {
+            let p = random_p(&mut rng);
+            let kind = if rng.gen_bool(0.4) {
+                Kind::Vertex
+            } else {
+                Kind::Poi
+            };
+            let n = w.add_node(p, Vec::new(), kind, META);
+            if kind == Kind::Vertex {
+                vertices.push(n);
+            } else if let Some((x, y)) = cell_xy(p) {
+                indexed.push((y * GRID_NX + x, Item::Node(n)));
+                pois.push(n);
+            }
+        }
+        let mut ways = Vec::new();
+        for _ in 0..800 {
+            let k = rng.gen_range(2..6);
+            let nodes: Vec<u32> = (0..k)
+                .map(|_| vertices[rng.gen_range(0..vertices.len())])
+                .collect();
+            let kind = if rng.gen_bool(0.5) {
+                Kind::Building
+            } else {
+                Kind::Street
+            };
+            let v = w.add_way(nodes, Vec::new(), kind, META);
+            if let Some((x, y)) = cell_xy(w.way_p(v)) {
+                indexed.push((y * GRID_NX + x, Item::Way(v)));
+            }
+            ways.push(v);
+        }
+        let mut found = 0;
+        for round in 0..400 {
+            match rng.gen_range(0..4) {
+                0 => w.hide(Item::Node(pois[rng.gen_range(0..pois.len())])),
+                1 => w.hide(Item::Way(ways[rng.gen_range(0..ways.len())])),
+                2 => {
+                    // A shared vertex or a point moves some way off.
+                    let n = if rng.gen_bool(0.5) {
+                        vertices[rng.gen_range(0..vertices.len())]
+                    } else {
+                        pois[rng.gen_range(0..pois.len())]
+                    };
+                    let (lat, lon) = random_p(&mut rng).to_e7();
+                    w.nodes[n as usize].lat = lat;
+                    w.nodes[n as usize].lon = lon;
+                    w.node_moved(n);
+                }
+                _ => {
+                    let v = ways[rng.gen_range(0..ways.len())];
+                    let n = vertices[rng.gen_range(0..vertices.len())];
+                    w.ways[v as usize].nodes.insert(1, n);
+                    w.link(n, v);
+                    w.refresh_way(v);
+                }
+            }
+            let p = random_p(&mut rng);
+            let r = rng.gen_range(0.05..0.8);
+            let kinds: &[Kind] = if round % 2 == 0 {
+                &[Kind::Building]
+            } else {
+                &ALL_KINDS
+            };
+            let keep = |w: &World, it: Item| match it {
+                Item::Node(_) => round % 2 == 1,
+                Item::Way(v) => w.way(v).kind == Kind::Building,
+            };
+            let got = w.near(p, r, kinds, keep);
+            assert_eq!(got, near_by_scan(&w, &indexed, p, r, keep), "round {round}");
+            found += got.len();
+        }
+        assert!(found > 1000, "the queries found only {found} items");
     }
 }
