@@ -1098,8 +1098,11 @@ impl Writer<'_, '_> {
         let deleted = op == Some(Op::Delete) || !el.visible;
         let is_node = t == ElementType::Node;
         if is_node && op.is_none() {
-            if let (Some((p, since)), true) = (square_mark(op, el), self.clip.is_some()) {
-                self.squares.mark(p, since);
+            // The parser marked its square, unless a clip area decides what is kept.
+            if self.clip.is_some() {
+                if let Some((p, since)) = square_mark(op, el) {
+                    self.squares.mark(p, since);
+                }
             }
             if el.tags.is_empty() {
                 // An untagged snapshot node: only its position matters. The index keeps the
