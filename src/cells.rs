@@ -135,73 +135,141 @@ pub fn cell_of(pos: crate::model::Coord, res: Resolution) -> Option<CellIndex> {
         .map(|ll| ll.to_cell(res))
 }
 
-/// Aggregates placed edits. `week_of[i]` is edit `i`'s week index in the window (`None`
-/// outside), `score(changeset)` gives its changeset's score, and scores at or above
-/// `flag_threshold` are flagged.
-#[must_use]
-pub fn aggregate(
-    edits: &[Edit],
-    facts: &[EditFacts],
-    week_of: &[Option<usize>],
+/// Counts placed edits into cell-weeks, and each changeset's share of each cell-week, a batch
+/// of edits at a time (a batch must hold all the window's edits of its changesets), so a window
+/// is counted without holding all its edits.
+#[derive(Debug, Clone)]
+pub struct CellCounter {
+    resolution: Resolution,
     weeks: usize,
-    res: Resolution,
-    score: &dyn Fn(i64) -> f64,
-    flag_threshold: f64,
-) -> CellWeeks {
-    let mut cells: BTreeMap<CellIndex, Vec<CellWeek>> = BTreeMap::new();
-    for ((e, f), w) in edits.iter().zip(facts).zip(week_of) {
-        let (Some(w), Some(pos)) = (*w, e.pos) else {
-            continue;
-        };
-        let Some(cell) = cell_of(pos, res) else {
-            continue;
-        };
-        let cw = &mut cells
-            .entry(cell)
-            .or_insert_with(|| vec![CellWeek::default(); weeks])[w];
-        cw.edits += 1;
-        match e.op {
-            Op::Create => cw.creates += 1,
-            Op::Modify => cw.modifies += 1,
-            Op::Delete => cw.deletes += 1,
-        }
-        let sc = score(e.changeset);
-        let is_flagged = sc >= flag_threshold;
-        #[allow(
-            clippy::cast_possible_truncation,
-            clippy::cast_sign_loss,
-            reason = "codes are 0..=2"
-        )]
-        {
-            cw.by_type[e.op.code() as usize][e.etype.code() as usize] += 1;
-        }
-        cw.newcomer_deletes += u64::from(f.newcomer && e.op == Op::Delete);
-        cw.water_creates += u64::from(f.water_create);
-        cw.score_sum += sc;
-        cw.score_max = cw.score_max.max(sc);
-        cw.newcomer_edits += u64::from(f.newcomer);
-        cw.offshore_creates += u64::from(f.offshore_create);
-        cw.deleted_features += u64::from(f.deleted_feature);
-        cw.spam_renames += u64::from(f.spam_rename);
-        cw.flagged_edits += u64::from(is_flagged);
-        cw.mappers.push(e.uid);
-        if f.newcomer {
-            cw.newcomers.push(e.uid);
+    cells: foldhash::HashMap<CellIndex, Vec<CellWeek>>,
+    rows: foldhash::HashMap<(usize, Option<CellIndex>, i64), ChangesetCellWeek>,
+}
+
+impl CellCounter {
+    /// An empty count of `weeks` weeks at resolution `res`.
+    #[must_use]
+    pub fn new(res: Resolution, weeks: usize) -> Self {
+        Self {
+            resolution: res,
+            weeks,
+            cells: foldhash::HashMap::default(),
+            rows: foldhash::HashMap::default(),
         }
     }
-    for weeks in cells.values_mut() {
-        for cw in weeks {
-            cw.mappers.sort_unstable();
-            cw.mappers.dedup();
-            cw.newcomers.sort_unstable();
-            cw.newcomers.dedup();
+
+    /// Adds a batch of edits with their facts. `week_of[i]` is edit `i`'s week index in the
+    /// window (`None` outside); `flagged(changeset)` says whether its changeset is flagged.
+    pub fn add(
+        &mut self,
+        edits: &[Edit],
+        facts: &[EditFacts],
+        week_of: &[Option<usize>],
+        flagged: &dyn Fn(i64) -> bool,
+    ) {
+        for ((e, f), w) in edits.iter().zip(facts).zip(week_of) {
+            let Some(week) = *w else { continue };
+            let cell = e.pos.and_then(|p| cell_of(p, self.resolution));
+            let is_flagged = flagged(e.changeset);
+            let r = self
+                .rows
+                .entry((week, cell, e.changeset))
+                .or_insert_with(|| ChangesetCellWeek {
+                    week,
+                    cell,
+                    changeset: e.changeset,
+                    uid: e.uid,
+                    ..ChangesetCellWeek::default()
+                });
+            match e.op {
+                Op::Create => r.creates += 1,
+                Op::Modify => r.modifies += 1,
+                Op::Delete => r.deletes += 1,
+            }
+            r.newcomer_edits += u64::from(f.newcomer);
+            r.deleted_features += u64::from(f.deleted_feature);
+            r.offshore_creates += u64::from(f.offshore_create);
+            r.spam_renames += u64::from(f.spam_rename);
+            r.flagged_edits += u64::from(is_flagged);
+            count_placement(&mut r.placement, e.placed_by);
+            let Some(cell) = cell else { continue };
+            let weeks = self.weeks;
+            let cw = &mut self
+                .cells
+                .entry(cell)
+                .or_insert_with(|| vec![CellWeek::default(); weeks])[week];
+            cw.edits += 1;
+            match e.op {
+                Op::Create => cw.creates += 1,
+                Op::Modify => cw.modifies += 1,
+                Op::Delete => cw.deletes += 1,
+            }
+            #[allow(
+                clippy::cast_possible_truncation,
+                clippy::cast_sign_loss,
+                reason = "codes are 0..=2"
+            )]
+            {
+                cw.by_type[e.op.code() as usize][e.etype.code() as usize] += 1;
+            }
+            cw.newcomer_deletes += u64::from(f.newcomer && e.op == Op::Delete);
+            cw.water_creates += u64::from(f.water_create);
+            cw.newcomer_edits += u64::from(f.newcomer);
+            cw.offshore_creates += u64::from(f.offshore_create);
+            cw.deleted_features += u64::from(f.deleted_feature);
+            cw.spam_renames += u64::from(f.spam_rename);
+            cw.flagged_edits += u64::from(is_flagged);
+            if cw.mappers.last() != Some(&e.uid) {
+                cw.mappers.push(e.uid);
+            }
+            if f.newcomer && cw.newcomers.last() != Some(&e.uid) {
+                cw.newcomers.push(e.uid);
+            }
+        }
+        for weeks in self.cells.values_mut() {
+            for cw in weeks {
+                cw.mappers.sort_unstable();
+                cw.mappers.dedup();
+                cw.newcomers.sort_unstable();
+                cw.newcomers.dedup();
+            }
         }
     }
-    debug_assert!(Kind::ALL.iter().enumerate().all(|(i, k)| k.index() == i));
-    CellWeeks {
-        resolution: res,
-        weeks,
-        cells,
+
+    /// The cell-weeks, with each one's sum and maximum of its edits' changeset scores
+    /// (`score(changeset)`), and the changesets' shares sorted by week, cell (unplaced first) and
+    /// changeset.
+    #[must_use]
+    pub fn finish(mut self, score: &dyn Fn(i64) -> f64) -> (CellWeeks, Vec<ChangesetCellWeek>) {
+        // Summed per changeset in a fixed order, so the result does not depend on batches.
+        let mut keys: Vec<&(usize, Option<CellIndex>, i64)> = self.rows.keys().collect();
+        keys.sort_unstable();
+        for r in keys.into_iter().filter_map(|k| self.rows.get(k)) {
+            let Some(cw) = r
+                .cell
+                .and_then(|c| self.cells.get_mut(&c))
+                .and_then(|w| w.get_mut(r.week))
+            else {
+                continue;
+            };
+            let sc = score(r.changeset);
+            #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+            {
+                cw.score_sum += r.edits() as f64 * sc;
+            }
+            cw.score_max = cw.score_max.max(sc);
+        }
+        debug_assert!(Kind::ALL.iter().enumerate().all(|(i, k)| k.index() == i));
+        let mut rows: Vec<ChangesetCellWeek> = self.rows.into_values().collect();
+        rows.sort_unstable_by_key(|r| (r.week, r.cell, r.changeset));
+        (
+            CellWeeks {
+                resolution: self.resolution,
+                weeks: self.weeks,
+                cells: self.cells.into_iter().collect(),
+            },
+            rows,
+        )
     }
 }
 
@@ -249,45 +317,6 @@ impl ChangesetCellWeek {
             Kind::ScoreHotspot => self.flagged_edits,
         }
     }
-}
-
-/// Each changeset's share of each cell-week (arguments as for [`aggregate`]), sorted by week,
-/// cell (unplaced first) and changeset.
-#[must_use]
-pub fn changeset_cell_weeks(
-    edits: &[Edit],
-    facts: &[EditFacts],
-    week_of: &[Option<usize>],
-    res: Resolution,
-    score: &dyn Fn(i64) -> f64,
-    flag_threshold: f64,
-) -> Vec<ChangesetCellWeek> {
-    let mut rows: BTreeMap<(usize, Option<CellIndex>, i64), ChangesetCellWeek> = BTreeMap::new();
-    for ((e, f), w) in edits.iter().zip(facts).zip(week_of) {
-        let Some(week) = *w else { continue };
-        let cell = e.pos.and_then(|p| cell_of(p, res));
-        let r = rows
-            .entry((week, cell, e.changeset))
-            .or_insert_with(|| ChangesetCellWeek {
-                week,
-                cell,
-                changeset: e.changeset,
-                uid: e.uid,
-                ..ChangesetCellWeek::default()
-            });
-        match e.op {
-            Op::Create => r.creates += 1,
-            Op::Modify => r.modifies += 1,
-            Op::Delete => r.deletes += 1,
-        }
-        r.newcomer_edits += u64::from(f.newcomer);
-        r.deleted_features += u64::from(f.deleted_feature);
-        r.offshore_creates += u64::from(f.offshore_create);
-        r.spam_renames += u64::from(f.spam_rename);
-        r.flagged_edits += u64::from(score(e.changeset) >= flag_threshold);
-        count_placement(&mut r.placement, e.placed_by);
-    }
-    rows.into_values().collect()
 }
 
 /// Per cell and kind, each changeset's contribution in week `week` (changesets contributing

@@ -200,6 +200,9 @@ impl ExistingData {
 #[derive(Debug, Default)]
 pub struct MapperHistory {
     created: HashMap<i64, Vec<i64>>,
+    /// Per mapper, aligned with `created`: distinct ISO weeks among the changesets up to and
+    /// including each one.
+    weeks_upto: HashMap<i64, Vec<u32>>,
     /// Per mapper, per changeset in time order: (first edit time, edits so far, deletions so far).
     work: HashMap<i64, Vec<(i64, u64, u64)>>,
     /// Per mapper: how each reverted changeset of theirs was reverted, by changeset start time.
@@ -236,8 +239,9 @@ impl MapperHistory {
             if !reverted.is_empty() {
                 out.reverted.insert(uid, reverted);
             }
-            out.created
-                .insert(uid, v.into_iter().map(|(t, _)| t).collect());
+            let created: Vec<i64> = v.into_iter().map(|(t, _)| t).collect();
+            out.weeks_upto.insert(uid, distinct_weeks_upto(&created));
+            out.created.insert(uid, created);
             let mut cum = (0u64, 0u64);
             let w: Vec<(i64, u64, u64)> = store
                 .mapper_work(uid)?
@@ -301,17 +305,33 @@ impl MapperHistory {
     /// Distinct ISO weeks with a changeset before `t`.
     #[must_use]
     pub fn active_weeks(&self, uid: i64, t: i64) -> usize {
-        let Some(v) = self.created.get(&uid) else {
+        let (Some(v), Some(w)) = (self.created.get(&uid), self.weeks_upto.get(&uid)) else {
             return 0;
         };
-        let mut weeks: Vec<i64> = v
-            .iter()
-            .take_while(|&&c| c < t)
-            .map(|c| (c - 345_600).div_euclid(604_800))
-            .collect();
-        weeks.dedup();
-        weeks.len()
+        let k = v.partition_point(|&c| c < t);
+        k.checked_sub(1)
+            .and_then(|i| w.get(i))
+            .map_or(0, |&n| n as usize)
     }
+}
+
+/// For times sorted ascending: at each position, the number of distinct weeks (Monday to
+/// Sunday, as ISO weeks) among the times up to and including it.
+fn distinct_weeks_upto(sorted: &[i64]) -> Vec<u32> {
+    let mut distinct = 0u32;
+    let mut last = None;
+    sorted
+        .iter()
+        .map(|&t| {
+            // Monday 1970-01-05, four days (345 600 s) after the epoch, starts a week.
+            let w = (t - 345_600).div_euclid(604_800);
+            if last != Some(w) {
+                distinct += 1;
+                last = Some(w);
+            }
+            distinct
+        })
+        .collect()
 }
 
 /// Account age in days at time `t` (0 when the first changeset seen is this one or later).
@@ -462,14 +482,16 @@ pub fn changeset_features(
     hist: &MapperHistory,
     first_edit_by_uid: &HashMap<i64, i64>,
 ) -> Vec<ChangesetFeatures> {
-    let mut by_cs: HashMap<i64, (ChangesetFeatures, i64, i64, HashMap<&str, u64>)> = HashMap::new();
+    // Per changeset: its features so far, first and last edit time, and new names given.
+    type Partial<'a> = (ChangesetFeatures, i64, i64, HashMap<&'a str, u64>);
+    let mut by_cs: HashMap<i64, Partial<'_>> = HashMap::new();
     for (e, f) in edits.iter().zip(facts) {
         let entry = by_cs.entry(e.changeset).or_insert_with(|| {
             (
                 ChangesetFeatures {
                     id: e.changeset,
                     uid: e.uid,
-                    user: e.user.clone(),
+                    user: e.user.to_string(),
                     ..ChangesetFeatures::default()
                 },
                 i64::MAX,
@@ -1015,6 +1037,30 @@ pub struct Window {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn distinct_weeks_follow_iso_weeks() {
+        use chrono::Datelike;
+        // Source: ISO 8601 weeks as chrono computes them (`IsoWeek`): two times share a week
+        // when their ISO year and week agree. Times straddle Sunday/Monday midnights, a year
+        // end with week 53 (2026-12-31 is in 2026-W53) and times before 1970.
+        let mut times: Vec<i64> = vec![-400_000, -1, 0, 345_599, 345_600];
+        for d in 0..40i64 {
+            let monday_2026_12_21 = 1_797_811_200;
+            times.push(monday_2026_12_21 + d * 43_200 - 1);
+            times.push(monday_2026_12_21 + d * 43_200);
+        }
+        times.sort_unstable();
+        let got = distinct_weeks_upto(&times);
+        let mut seen = Vec::new();
+        for (i, &t) in times.iter().enumerate() {
+            let w = chrono::DateTime::from_timestamp(t, 0).unwrap().iso_week();
+            if seen.last() != Some(&(w.year(), w.week())) {
+                seen.push((w.year(), w.week()));
+            }
+            assert_eq!(got[i] as usize, seen.len(), "at {t}");
+        }
+    }
 
     #[test]
     fn spam_like_names() {

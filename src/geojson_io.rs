@@ -52,15 +52,16 @@ fn geometry(g: &Geometry) -> Result<Option<MultiPolygon<f64>>, String> {
     }
 }
 
+/// A named (or unnamed) polygonal geometry read from GeoJSON.
+pub type NamedPolygon = (Option<String>, MultiPolygon<f64>);
+
 /// Every polygonal geometry in a GeoJSON text, with the feature's `name` property when present.
 /// Features with other geometry types are skipped.
 ///
 /// # Errors
 /// A message when the text is not GeoJSON or a polygon is malformed (the message names the
 /// feature's position in the collection).
-pub fn polygons_from_geojson(
-    text: &str,
-) -> Result<Vec<(Option<String>, MultiPolygon<f64>)>, String> {
+pub fn polygons_from_geojson(text: &str) -> Result<Vec<NamedPolygon>, String> {
     let gj: GeoJson = text.parse().map_err(|e| format!("invalid GeoJSON: {e}"))?;
     let mut out = Vec::new();
     match gj {

@@ -34,7 +34,7 @@ pub struct Edit {
     pub op: Op,
     pub changeset: i64,
     pub uid: i64,
-    pub user: String,
+    pub user: std::sync::Arc<str>,
     pub ts: i64,
     pub pos: Option<Coord>,
     pub placed_by: PlacedBy,
@@ -68,7 +68,7 @@ const MAX_MEMBERS_FOR_CENTROID: usize = 500;
 struct Positions<'a> {
     store: &'a Store,
     nodes: NodeIndex,
-    cache: HashMap<i64, Option<Coord>>,
+    cache: foldhash::HashMap<i64, Option<Coord>>,
 }
 
 impl Positions<'_> {
@@ -148,7 +148,36 @@ impl Centroid {
     }
 }
 
-/// Loads changeset metadata by id.
+/// Ids closer than this are read with one range query: changeset ids grow with time, so a
+/// week's changesets lie in a few dense runs of ids.
+const ID_RUN_GAP: i64 = 64;
+
+fn changeset_row(r: &rusqlite::Row<'_>) -> rusqlite::Result<ChangesetMeta> {
+    let bbox = match (
+        r.get::<_, Option<f64>>(5)?,
+        r.get::<_, Option<f64>>(6)?,
+        r.get::<_, Option<f64>>(7)?,
+        r.get::<_, Option<f64>>(8)?,
+    ) {
+        (Some(a), Some(b), Some(c), Some(d)) => {
+            Coord::from_degrees(a, b).zip(Coord::from_degrees(c, d))
+        }
+        _ => None,
+    };
+    Ok(ChangesetMeta {
+        id: r.get(0)?,
+        uid: r.get(1)?,
+        user: r.get(2)?,
+        created_at: r.get(3)?,
+        closed_at: r.get(4)?,
+        bbox,
+        comment: r.get(9)?,
+        editor: r.get(10)?,
+        num_changes: r.get(11)?,
+    })
+}
+
+/// Loads changeset metadata by id (ids without metadata are left out).
 ///
 /// # Errors
 /// On database failure.
@@ -156,45 +185,35 @@ pub fn load_changesets(
     store: &Store,
     ids: impl IntoIterator<Item = i64>,
 ) -> Result<HashMap<i64, ChangesetMeta>, StoreError> {
+    let mut ids: Vec<i64> = ids.into_iter().collect();
+    ids.sort_unstable();
+    ids.dedup();
     let mut st = store
         .conn()
         .prepare_cached(
             "SELECT id, uid, user, created_at, closed_at, min_lat, min_lon, max_lat, max_lon, comment, editor, num_changes
-             FROM changesets WHERE id = ?1",
+             FROM changesets WHERE id BETWEEN ?1 AND ?2",
         )
         .map_err(|e| store.map_err(e))?;
-    let mut out = HashMap::new();
-    for id in ids {
-        let row = st
-            .query_row([id], |r| {
-                let bbox = match (
-                    r.get::<_, Option<f64>>(5)?,
-                    r.get::<_, Option<f64>>(6)?,
-                    r.get::<_, Option<f64>>(7)?,
-                    r.get::<_, Option<f64>>(8)?,
-                ) {
-                    (Some(a), Some(b), Some(c), Some(d)) => {
-                        Coord::from_degrees(a, b).zip(Coord::from_degrees(c, d))
-                    }
-                    _ => None,
-                };
-                Ok(ChangesetMeta {
-                    id: r.get(0)?,
-                    uid: r.get(1)?,
-                    user: r.get(2)?,
-                    created_at: r.get(3)?,
-                    closed_at: r.get(4)?,
-                    bbox,
-                    comment: r.get(9)?,
-                    editor: r.get(10)?,
-                    num_changes: r.get(11)?,
-                })
-            })
-            .optional()
-            .map_err(|e| store.map_err(e))?;
-        if let Some(m) = row {
-            out.insert(id, m);
+    let mut out = HashMap::with_capacity(ids.len());
+    let mut k = 0;
+    while k < ids.len() {
+        let mut end = k + 1;
+        while end < ids.len() && ids[end] - ids[end - 1] <= ID_RUN_GAP {
+            end += 1;
         }
+        let run = &ids[k..end];
+        let (lo, hi) = (run[0], run[run.len() - 1]);
+        let rows = st
+            .query_map([lo, hi], changeset_row)
+            .map_err(|e| store.map_err(e))?;
+        for row in rows {
+            let m = row.map_err(|e| store.map_err(e))?;
+            if run.binary_search(&m.id).is_ok() {
+                out.insert(m.id, m);
+            }
+        }
+        k = end;
     }
     Ok(out)
 }
@@ -211,6 +230,10 @@ pub fn load_edits(
     let coord = |p: Option<(i32, i32)>| p.and_then(|(a, b)| Coord::from_e7(a.into(), b.into()));
     let rows = store.edits(from, to)?.into_iter().map(|e| {
         let pos = coord(e.pos);
+        let (prev_tags, prev_version, prev_ts, prev_pos) = match e.prev {
+            Some(p) => (Some(p.tags), Some(p.version), p.ts, coord(p.pos)),
+            None => (None, None, None, None),
+        };
         (
             Edit {
                 etype: e.etype,
@@ -228,10 +251,10 @@ pub fn load_edits(
                     PlacedBy::Unplaced
                 },
                 tags: e.tags,
-                prev_tags: e.prev.as_ref().map(|p| p.tags.clone()),
-                prev_version: e.prev.as_ref().map(|p| p.version),
-                prev_ts: e.prev.as_ref().and_then(|p| p.ts),
-                prev_pos: coord(e.prev.as_ref().and_then(|p| p.pos)),
+                prev_tags,
+                prev_version,
+                prev_ts,
+                prev_pos,
             },
             e.refs,
         )
@@ -240,7 +263,7 @@ pub fn load_edits(
     let mut index = Positions {
         store,
         nodes: store.node_index()?,
-        cache: HashMap::new(),
+        cache: foldhash::HashMap::default(),
     };
     let mut pending = Vec::new();
     for (mut e, refs) in rows {

@@ -4,6 +4,12 @@ use std::process::ExitCode;
 
 use clap::Parser;
 
+/// mimalloc instead of the system allocator: the report and the ingest allocate and free many
+/// small strings and week-sized buffers, which glibc's allocator handed back to the kernel and
+/// faulted in again (BENCHMARKS.md, "Report").
+#[global_allocator]
+static ALLOC: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 fn main() -> ExitCode {
     let cli = hexvigil::cli::Cli::parse();
     match hexvigil::cli::run(cli) {

@@ -159,24 +159,39 @@ pub struct NodeIndex {
     count: u64,
     /// First id of each block and the index of its first entry.
     dir: Vec<(i64, u64)>,
-    /// The block read last. The nodes of a way usually have neighbouring ids, so placing a way
-    /// reads one or two blocks instead of one per node.
-    last: RefCell<LastBlock>,
+    /// Copies of blocks read recently. The nodes of a way usually have neighbouring ids, and
+    /// the ways of an area share nodes, so most lookups find their block here.
+    cache: RefCell<BlockCache>,
 }
 
-/// A copy of one block of the file.
-#[derive(Debug)]
-struct LastBlock {
-    block: usize,
+/// Blocks held by the cache: at most this many (4 KiB each, 16 MiB in all).
+const CACHE_SLOTS: usize = 4096;
+
+/// A direct-mapped cache of blocks of the file: block `b` can only sit in slot
+/// `b % CACHE_SLOTS`. Slot memory is allocated zeroed and untouched until used.
+#[derive(Debug, Default)]
+struct BlockCache {
+    /// Per slot, the block it holds (`usize::MAX`: none) and its entry count.
+    tags: Vec<(usize, usize)>,
     bytes: Vec<u8>,
 }
 
-impl Default for LastBlock {
-    fn default() -> Self {
-        Self {
-            block: usize::MAX,
-            bytes: Vec::with_capacity(BLOCK_ENTRIES * ENTRY_BYTES as usize),
+impl BlockCache {
+    const SLOT_BYTES: usize = BLOCK_ENTRIES * ENTRY_BYTES as usize;
+
+    /// The bytes of block `b` if cached, else `None` and the slot to fill.
+    fn slot(&mut self, b: usize) -> (usize, bool) {
+        if self.tags.is_empty() {
+            self.tags = vec![(usize::MAX, 0); CACHE_SLOTS];
+            self.bytes = vec![0; CACHE_SLOTS * Self::SLOT_BYTES];
         }
+        let k = b % CACHE_SLOTS;
+        (k, self.tags[k].0 == b)
+    }
+
+    fn block(&self, k: usize) -> &[u8] {
+        let n = self.tags[k].1;
+        &self.bytes[k * Self::SLOT_BYTES..k * Self::SLOT_BYTES + n * ENTRY_BYTES as usize]
     }
 }
 
@@ -189,7 +204,7 @@ impl NodeIndex {
             path: PathBuf::new(),
             count: 0,
             dir: Vec::new(),
-            last: RefCell::default(),
+            cache: RefCell::default(),
         }
     }
 
@@ -275,7 +290,7 @@ impl NodeIndex {
             path: path.to_owned(),
             count,
             dir,
-            last: RefCell::default(),
+            cache: RefCell::default(),
         })
     }
 
@@ -312,16 +327,22 @@ impl NodeIndex {
         let Some(offset) = id.checked_sub(base).and_then(|d| u32::try_from(d).ok()) else {
             return Ok(None);
         };
-        let mut last = self.last.borrow_mut();
-        if last.block != b {
-            let n = usize::try_from(self.block_end(b) - first).unwrap_or(0);
-            last.block = usize::MAX;
-            last.bytes.resize(n * ENTRY_BYTES as usize, 0);
-            file.read_exact_at(&mut last.bytes, HEADER_BYTES + first * ENTRY_BYTES)
-                .map_err(io_err(&self.path))?;
-            last.block = b;
+        let mut cache = self.cache.borrow_mut();
+        let (k, hit) = cache.slot(b);
+        if !hit {
+            let n = usize::try_from(self.block_end(b) - first)
+                .unwrap_or(usize::MAX)
+                .min(BLOCK_ENTRIES);
+            cache.tags[k] = (usize::MAX, 0);
+            let at = k * BlockCache::SLOT_BYTES;
+            file.read_exact_at(
+                &mut cache.bytes[at..at + n * ENTRY_BYTES as usize],
+                HEADER_BYTES + first * ENTRY_BYTES,
+            )
+            .map_err(io_err(&self.path))?;
+            cache.tags[k] = (b, n);
         }
-        let block = &last.bytes;
+        let block = cache.block(k);
         let n = block.len() / ENTRY_BYTES as usize;
         let off_at = |i: usize| {
             let mut a = [0u8; 4];

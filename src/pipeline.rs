@@ -9,12 +9,12 @@ use std::path::{Path, PathBuf};
 
 use h3o::{CellIndex, LatLng, Resolution};
 
-use crate::cells::{aggregate, changeset_cell_weeks, CellWeeks, ChangesetCellWeek};
+use crate::cells::{CellCounter, CellWeeks, ChangesetCellWeek};
 use crate::detect::{detect, DetectConfig};
 use crate::features::{changeset_features, edit_facts, ExistingData, FeatureConfig, MapperHistory};
 use crate::labels::RevertIndex;
 use crate::land::{Land, LandError, LandSource};
-use crate::locate::load_edits;
+use crate::locate::{load_edits, ChangesetMeta, Edit};
 use crate::measure::{heat_cells, Measure};
 use crate::model::IsoWeek;
 use crate::progress::Progress;
@@ -256,6 +256,11 @@ fn load_regions(opts: &ReportOptions) -> Result<Vec<Region>, PipelineError> {
 /// the edits into cells at `opts.resolution`, or by default at the resolution suited to the
 /// area edited in `resolution_week`.
 ///
+/// Memory follows a week's edits, not the window's: a first pass reads only who edited when
+/// (each changeset's last edit, each mapper's first), then the edits are loaded a week at a
+/// time, and each changeset is scored and counted once all its edits in the window are loaded
+/// (a changeset still open at the end of a week waits for the next).
+///
 /// # Errors
 /// On database failure, or [`PipelineError::NoData`] when `last_week` has no edits.
 pub fn count(
@@ -269,73 +274,88 @@ pub fn count(
     let weeks = usize::try_from(last_week.ordinal() - first_week.ordinal() + 1).unwrap_or(0);
     let from = first_week.start_unix();
     let to = last_week.offset(1).start_unix();
-    let (edits, metas) = load_edits(store, from, to)?;
-    if !edits.iter().any(|e| e.ts >= last_week.start_unix()) {
+    let times = store.edit_times(from, to)?;
+    if times.last_ts.is_none_or(|t| t < last_week.start_unix()) {
         return Err(PipelineError::NoData {
             path: store.path().to_owned(),
             message: format!("no edits in the report week {last_week}"),
         });
     }
-    let mut first_edit: HashMap<i64, i64> = HashMap::new();
-    for e in &edits {
-        first_edit
-            .entry(e.uid)
-            .and_modify(|t| *t = (*t).min(e.ts))
-            .or_insert(e.ts);
-    }
+    let first_edit = &times.mapper_first;
     let mut uids: Vec<i64> = first_edit.keys().copied().collect();
     uids.sort_unstable();
     let reverts = RevertIndex::load(store)?;
     let existing = ExistingData::load(store)?;
     let hist = MapperHistory::load(store, uids, &reverts)?;
-    let facts = edit_facts(&edits, &hist, &first_edit, land, &existing, &opts.features);
-    let features = changeset_features(&edits, &facts, &metas, &hist, &first_edit);
-    let changesets: HashMap<i64, ScoredChangeset> = features
-        .iter()
-        .map(|f| {
-            let s = opts.scoring.score(f);
-            let c = ScoredChangeset {
-                id: f.id,
-                uid: f.uid,
-                user: f.user.clone(),
-                created_at: f.created_at,
-                account_age_days: f.account_age_days,
-                comment: f.comment.clone(),
-                editor: f.editor.clone(),
-                score: s.score,
-                reasons: s.reasons.into_iter().map(|r| r.1).collect(),
-            };
-            (f.id, c)
-        })
-        .collect();
+    let res = match opts.resolution {
+        Some(r) => r,
+        None => {
+            let (edits, _) = load_edits(
+                store,
+                resolution_week.start_unix(),
+                resolution_week.offset(1).start_unix(),
+            )?;
+            let ext = bbox_of(edits.iter().filter_map(|e| e.pos.map(|p| (p.lon(), p.lat()))));
+            let km = ext.map_or(0.0, |r| {
+                let a = crate::model::Coord::from_degrees(r.min().y, r.min().x);
+                let b = crate::model::Coord::from_degrees(r.max().y, r.max().x);
+                a.zip(b).map_or(0.0, |(a, b)| a.distance_m(b) / 1000.0)
+            });
+            default_resolution(km)
+        }
+    };
     let threshold = opts.flag_threshold;
-    let score_of = |cs: i64| changesets.get(&cs).map_or(0.0, |s| s.score);
-
-    let week_of: Vec<Option<usize>> = edits
-        .iter()
-        .map(|e| {
-            let w = (e.ts - from).div_euclid(604_800);
-            usize::try_from(w).ok().filter(|&w| w < weeks)
-        })
-        .collect();
-    let res_idx = usize::try_from(resolution_week.ordinal() - first_week.ordinal()).ok();
-    let res = opts.resolution.unwrap_or_else(|| {
-        let ext = bbox_of(
-            edits
-                .iter()
-                .zip(&week_of)
-                .filter(|(_, w)| **w == res_idx)
-                .filter_map(|(e, _)| e.pos.map(|p| (p.lon(), p.lat()))),
-        );
-        let km = ext.map_or(0.0, |r| {
-            let a = crate::model::Coord::from_degrees(r.min().y, r.min().x);
-            let b = crate::model::Coord::from_degrees(r.max().y, r.max().x);
-            a.zip(b).map_or(0.0, |(a, b)| a.distance_m(b) / 1000.0)
-        });
-        default_resolution(km)
-    });
-    let cell_weeks = aggregate(&edits, &facts, &week_of, weeks, res, &score_of, threshold);
-    let changeset_cells = changeset_cell_weeks(&edits, &facts, &week_of, res, &score_of, threshold);
+    let mut counter = CellCounter::new(res, weeks);
+    let mut changesets: HashMap<i64, ScoredChangeset> = HashMap::new();
+    let mut waiting: Vec<Edit> = Vec::new();
+    let mut waiting_metas: HashMap<i64, ChangesetMeta> = HashMap::new();
+    for k in 0..weeks {
+        let week = first_week.offset(i64::try_from(k).unwrap_or(i64::MAX));
+        let week_end = week.offset(1).start_unix();
+        let (loaded, mut metas) = load_edits(store, week.start_unix(), week_end)?;
+        metas.extend(waiting_metas.drain());
+        let mut edits = std::mem::take(&mut waiting);
+        edits.extend(loaded);
+        // Changesets with edits after this week wait, with their metadata, for a later week.
+        let done = |cs: i64| times.changeset_last.get(&cs).is_none_or(|&t| t < week_end);
+        let (ready, later): (Vec<Edit>, Vec<Edit>) =
+            edits.into_iter().partition(|e| done(e.changeset));
+        for e in &later {
+            if let Some(m) = metas.remove(&e.changeset) {
+                waiting_metas.insert(e.changeset, m);
+            }
+        }
+        waiting = later;
+        let facts = edit_facts(&ready, &hist, first_edit, land, &existing, &opts.features);
+        for f in changeset_features(&ready, &facts, &metas, &hist, first_edit) {
+            let s = opts.scoring.score(&f);
+            changesets.insert(
+                f.id,
+                ScoredChangeset {
+                    id: f.id,
+                    uid: f.uid,
+                    user: f.user,
+                    created_at: f.created_at,
+                    account_age_days: f.account_age_days,
+                    comment: f.comment,
+                    editor: f.editor,
+                    score: s.score,
+                    reasons: s.reasons.into_iter().map(|r| r.1).collect(),
+                },
+            );
+        }
+        let week_of: Vec<Option<usize>> = ready
+            .iter()
+            .map(|e| {
+                let w = (e.ts - from).div_euclid(604_800);
+                usize::try_from(w).ok().filter(|&w| w < weeks)
+            })
+            .collect();
+        let flagged = |cs: i64| changesets.get(&cs).is_some_and(|s| s.score >= threshold);
+        counter.add(&ready, &facts, &week_of, &flagged);
+    }
+    let (cell_weeks, changeset_cells) =
+        counter.finish(&|cs| changesets.get(&cs).map_or(0.0, |s| s.score));
     Ok(Counted {
         first_week,
         cell_weeks,

@@ -748,21 +748,18 @@ fn row_cell(row: &Row<'_>, res: Resolution) -> Result<Option<CellIndex>, ExportE
     Ok(Some(cell))
 }
 
+/// Distinct mappers and newcomers per cell and week index, as an export stores them.
+type DistinctCounts = HashMap<(CellIndex, usize), (u64, u64)>;
+
 fn read_cell_weeks(
     dir: &Path,
     res: Resolution,
     first: IsoWeek,
     weeks: usize,
     last: IsoWeek,
-) -> Result<
-    (
-        BTreeMap<CellIndex, Vec<CellWeek>>,
-        HashMap<(CellIndex, usize), (u64, u64)>,
-    ),
-    ExportError,
-> {
+) -> Result<(BTreeMap<CellIndex, Vec<CellWeek>>, DistinctCounts), ExportError> {
     let mut cells: BTreeMap<CellIndex, Vec<CellWeek>> = BTreeMap::new();
-    let mut distinct: HashMap<(CellIndex, usize), (u64, u64)> = HashMap::new();
+    let mut distinct: DistinctCounts = HashMap::new();
     for (week, folder) in week_folders(&dir.join("cell_weeks"), Some(first), last)? {
         let w = usize::try_from(week.ordinal() - first.ordinal()).unwrap_or(0);
         for file in columns::parquet_files(&folder)? {

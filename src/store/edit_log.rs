@@ -21,7 +21,7 @@
 //!
 //! The log keeps what the files said, repeats included: two overlapping diffs put the same
 //! element version in two blocks. Readers count it once ([`dedup_sorted`]), keeping the copy
-//! ingested first, as a unique key would.
+//! ingested first, as a unique key on type, id, version and timestamp would.
 
 use std::collections::HashMap;
 
@@ -43,7 +43,8 @@ pub struct StoredEdit {
     pub op: Op,
     pub changeset: i64,
     pub uid: i64,
-    pub user: String,
+    /// The mapper's name (shared by all their edits read from one block).
+    pub user: std::sync::Arc<str>,
     /// Unix seconds.
     pub ts: i64,
     /// Latitude and longitude in 1e-7 degrees, when the file gave them.
@@ -290,28 +291,45 @@ impl<'a> Cursor<'a> {
         Ok(b)
     }
 
-    fn text(&mut self) -> Result<String, DecodeError> {
-        let b = self.bytes()?;
-        String::from_utf8(b.to_vec()).map_err(|_| self.fail("text is not UTF-8"))
-    }
 }
 
-/// Decodes a block's payload, calling `keep` on each edit's timestamp first: edits it refuses
-/// are skipped without building their strings.
-///
-/// # Errors
-/// When the payload is damaged.
-pub fn decode(
-    data: &[u8],
-    mut keep: impl FnMut(i64) -> bool,
-    out: &mut Vec<StoredEdit>,
+/// One edit as it lies in a block: numbers decoded, text and refs still borrowed.
+struct RawEdit<'a> {
+    etype: ElementType,
+    eid: i64,
+    version: i64,
+    op: Op,
+    changeset: i64,
+    uid: i64,
+    ts: i64,
+    pos: Option<(i32, i32)>,
+    tags: &'a [u8],
+    refs: Option<&'a [u8]>,
+    prev: Option<RawPrev<'a>>,
+    /// Byte offset just after the edit (for errors).
+    end: usize,
+}
+
+/// The replaced state of a [`RawEdit`].
+struct RawPrev<'a> {
+    version: i64,
+    ts: Option<i64>,
+    tags: &'a [u8],
+    pos: Option<(i32, i32)>,
+}
+
+/// Walks a block's payload edit by edit, calling `visit` with each edit and the mappers' names
+/// met so far in the block.
+fn walk<'a>(
+    data: &'a [u8],
+    mut visit: impl FnMut(&RawEdit<'a>, &HashMap<i64, &'a [u8]>) -> Result<(), DecodeError>,
 ) -> Result<(), DecodeError> {
     let mut c = Cursor { data, at: 0 };
     if c.byte()? != FORMAT {
         return Err(c.fail("unknown block format"));
     }
     let mut last = Last::default();
-    let mut users: HashMap<i64, String> = HashMap::new();
+    let mut users: HashMap<i64, &'a [u8]> = HashMap::new();
     while c.at < data.len() {
         let flags = c.byte()?;
         let etype = ElementType::from_code(i64::from(flags & 3))
@@ -323,7 +341,7 @@ pub fn decode(
         last.ts = last.ts.wrapping_add(c.signed()?);
         let version = c.signed()?;
         if flags & 0x80 != 0 {
-            let name = c.text()?;
+            let name = c.bytes()?;
             users.insert(last.uid, name);
         }
         let pos = if flags & 0x10 != 0 {
@@ -335,7 +353,6 @@ pub fn decode(
         } else {
             None
         };
-        let wanted = keep(last.ts);
         let tags = c.bytes()?;
         let refs = if flags & 0x20 != 0 {
             Some(c.bytes()?)
@@ -356,67 +373,119 @@ pub fn decode(
             } else {
                 None
             };
-            Some((version, ts, tags, pos))
+            Some(RawPrev {
+                version,
+                ts,
+                tags,
+                pos,
+            })
         } else {
             None
         };
-        if !wanted {
-            continue;
-        }
-        let at = c.at;
-        let text = |b: &[u8]| {
-            std::str::from_utf8(b)
-                .map(str::to_owned)
-                .map_err(|_| DecodeError {
-                    offset: at,
-                    message: "text is not UTF-8",
-                })
-        };
-        out.push(StoredEdit {
+        let raw = RawEdit {
             etype,
             eid: last.eid,
             version,
             op,
             changeset: last.changeset,
             uid: last.uid,
-            user: users
-                .get(&last.uid)
-                .cloned()
-                .ok_or_else(|| c.fail("mapper without a name"))?,
             ts: last.ts,
             pos,
-            tags: text(tags)?,
-            refs: refs.map(<[u8]>::to_vec),
-            prev: match prev {
-                Some((version, ts, tags, pos)) => Some(PrevState {
-                    version,
-                    ts,
-                    tags: text(tags)?,
-                    pos,
-                }),
-                None => None,
-            },
-        });
+            tags,
+            refs,
+            prev,
+            end: c.at,
+        };
+        visit(&raw, &users)?;
     }
     Ok(())
 }
 
+/// Decodes a block's payload, calling `keep` on each edit's timestamp first: edits it refuses
+/// are skipped without building their strings.
+///
+/// # Errors
+/// When the payload is damaged.
+pub fn decode(
+    data: &[u8],
+    mut keep: impl FnMut(i64) -> bool,
+    out: &mut Vec<StoredEdit>,
+) -> Result<(), DecodeError> {
+    let mut names: HashMap<i64, std::sync::Arc<str>> = HashMap::new();
+    walk(data, |e, users| {
+        if !keep(e.ts) {
+            return Ok(());
+        }
+        let fail = |message| DecodeError {
+            offset: e.end,
+            message,
+        };
+        let text = |b: &[u8]| {
+            std::str::from_utf8(b)
+                .map(str::to_owned)
+                .map_err(|_| fail("text is not UTF-8"))
+        };
+        out.push(StoredEdit {
+            etype: e.etype,
+            eid: e.eid,
+            version: e.version,
+            op: e.op,
+            changeset: e.changeset,
+            uid: e.uid,
+            user: match names.get(&e.uid) {
+                Some(n) => n.clone(),
+                None => {
+                    let raw = users.get(&e.uid).ok_or_else(|| fail("mapper without a name"))?;
+                    let n: std::sync::Arc<str> = text(raw)?.into();
+                    names.insert(e.uid, n.clone());
+                    n
+                }
+            },
+            ts: e.ts,
+            pos: e.pos,
+            tags: text(e.tags)?,
+            refs: e.refs.map(<[u8]>::to_vec),
+            prev: match &e.prev {
+                Some(p) => Some(PrevState {
+                    version: p.version,
+                    ts: p.ts,
+                    tags: text(p.tags)?,
+                    pos: p.pos,
+                }),
+                None => None,
+            },
+        });
+        Ok(())
+    })
+}
+
+/// The changeset, mapper and time of every edit of a block's payload, without building any
+/// text: for passes that only need to know who edited when.
+///
+/// # Errors
+/// When the payload is damaged.
+pub fn scan(data: &[u8], mut f: impl FnMut(i64, i64, i64)) -> Result<(), DecodeError> {
+    walk(data, |e, _| {
+        f(e.changeset, e.uid, e.ts);
+        Ok(())
+    })
+}
+
 /// Sorts edits read in log order by time, then type, id and version, keeping the first copy
-/// read of each element version (the one ingested first). Sorts small keys, not the edits:
-/// moving whole edits around in a sort was a seventh of a report's time.
+/// read of each element version (the one ingested first). A copy is the same type, id, version
+/// and timestamp: a version's timestamp is part of it, and readers that take the log a week at
+/// a time must find both copies in the same week. Sorts small keys, not the edits: moving whole
+/// edits around in a sort was a seventh of a report's time.
 #[must_use]
 pub fn dedup_sorted(edits: Vec<StoredEdit>) -> Vec<StoredEdit> {
-    let key = |i: usize, e: &StoredEdit| (e.etype.code(), e.eid, e.version, i);
-    let mut keys: Vec<(i64, i64, i64, usize)> =
-        edits.iter().enumerate().map(|(i, e)| key(i, e)).collect();
-    // The position breaks ties, so the first copy read comes first and survives the dedup.
-    keys.sort_unstable();
-    keys.dedup_by(|b, a| (a.0, a.1, a.2) == (b.0, b.1, b.2));
-    let mut order: Vec<(i64, i64, i64, i64, usize)> = keys
-        .into_iter()
-        .map(|(t, id, v, i)| (edits[i].ts, t, id, v, i))
+    let mut order: Vec<(i64, i64, i64, i64, usize)> = edits
+        .iter()
+        .enumerate()
+        .map(|(i, e)| (e.ts, e.etype.code(), e.eid, e.version, i))
         .collect();
+    // The position breaks ties, so the first copy read comes first and survives the dedup.
     order.sort_unstable();
+    order.dedup_by(|b, a| (a.0, a.1, a.2, a.3) == (b.0, b.1, b.2, b.3));
     let mut slots: Vec<Option<StoredEdit>> = edits.into_iter().map(Some).collect();
     order
         .into_iter()
@@ -436,7 +505,7 @@ mod tests {
             op: [Op::Create, Op::Modify, Op::Delete][(i % 3) as usize],
             changeset: 90_000_000 + i / 10,
             uid: i % 4 - 1,
-            user: format!("mapper {}", i % 4),
+            user: format!("mapper {}", i % 4).into(),
             ts: 1_769_990_400 + i * 13 - (i % 7) * 100,
             pos: (i % 4 != 0).then_some((-900_000_000 + (i as i32) * 3, 1_799_999_999 - i as i32)),
             tags: if i % 2 == 0 {
@@ -539,9 +608,13 @@ mod tests {
         a.ts += 10;
         b.ts += 10;
         let v = dedup_sorted(vec![c.clone(), a.clone(), b, c.clone()]);
-        let mut want = vec![a, c];
+        let mut want = vec![a.clone(), c];
         want.sort_by_key(|e| e.ts);
         assert_eq!(v, want);
+        // A different timestamp makes a different version record: both are kept.
+        let mut d = a.clone();
+        d.ts += 1;
+        assert_eq!(dedup_sorted(vec![d.clone(), a.clone()]), vec![a, d]);
     }
 
     #[test]

@@ -19,6 +19,7 @@
 
 pub mod edit_log;
 
+use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
 use rusqlite::{params, Connection, OptionalExtension, Transaction};
@@ -107,6 +108,17 @@ pub fn member_decode(code: i64) -> Option<(ElementType, i64)> {
         ElementType::from_code(code.rem_euclid(4))?,
         code.div_euclid(4),
     ))
+}
+
+/// Who edited when in a time window ([`Store::edit_times`]).
+#[derive(Debug, Default, Clone)]
+pub struct EditTimes {
+    /// Per changeset, the time of its last edit in the window.
+    pub changeset_last: HashMap<i64, i64>,
+    /// Per mapper (uid), the time of their first edit in the window.
+    pub mapper_first: HashMap<i64, i64>,
+    /// The time of the window's last edit, if it has any.
+    pub last_ts: Option<i64>,
 }
 
 /// An open state database.
@@ -489,6 +501,29 @@ impl Store {
             edit_log::decode(data, |t| t >= from && t < to, &mut out)
         })?;
         Ok(edit_log::dedup_sorted(out))
+    }
+
+    /// Who edited when in `from <= ts < to`, without reading the edits' text: each changeset's
+    /// last edit time and each mapper's first edit time in the window (a repeated element
+    /// version changes neither).
+    ///
+    /// # Errors
+    /// On SQLite failure or a damaged block.
+    pub fn edit_times(&self, from: i64, to: i64) -> Result<EditTimes, StoreError> {
+        let mut out = EditTimes::default();
+        self.for_each_edit_block(from, to, |data| {
+            edit_log::scan(data, |changeset, uid, ts| {
+                if ts < from || ts >= to {
+                    return;
+                }
+                let last = out.changeset_last.entry(changeset).or_insert(ts);
+                *last = (*last).max(ts);
+                let first = out.mapper_first.entry(uid).or_insert(ts);
+                *first = (*first).min(ts);
+                out.last_ts = Some(out.last_ts.map_or(ts, |l: i64| l.max(ts)));
+            })
+        })?;
+        Ok(out)
     }
 
     /// Calls `f` with the payload of each block of the edit log whose time span meets
@@ -1131,7 +1166,7 @@ mod tests {
                     e.version,
                     e.op,
                     e.changeset,
-                    e.user.as_str(),
+                    &*e.user,
                     e.ts,
                     e.pos,
                     e.tags.as_str(),
