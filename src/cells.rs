@@ -226,8 +226,13 @@ impl CellCounter {
                 cw.newcomers.push(e.uid);
             }
         }
+        // Distinct mappers: only the weeks this batch touched can hold repeats.
+        let mut touched: Vec<usize> = week_of.iter().flatten().copied().collect();
+        touched.sort_unstable();
+        touched.dedup();
         for weeks in self.cells.values_mut() {
-            for cw in weeks {
+            for &w in &touched {
+                let Some(cw) = weeks.get_mut(w) else { continue };
                 cw.mappers.sort_unstable();
                 cw.mappers.dedup();
                 cw.newcomers.sort_unstable();

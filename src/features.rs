@@ -363,6 +363,7 @@ pub fn edit_facts(
         let t = cs_start.entry(e.changeset).or_insert(e.ts);
         *t = (*t).min(e.ts);
     }
+    let mut land_lookup = crate::land::LandLookup::new(land);
     edits
         .iter()
         .map(|e| {
@@ -405,7 +406,7 @@ pub fn edit_facts(
             let tagged = !e.tags.is_empty();
             let judged = e.etype != ElementType::Relation || tagged;
             if e.op == Op::Create && !land.is_empty() {
-                if let Some(d) = e.pos.and_then(|p| land.distance_to_land_m(p)) {
+                if let Some(d) = e.pos.and_then(|p| land_lookup.distance_to_land_m(p)) {
                     f.water_create = d > 0.0;
                     if d >= cfg.offshore_min_m && tagged && judged && !is_maritime(&e.tags) {
                         f.offshore_create = true;
@@ -500,7 +501,14 @@ pub fn changeset_features(
             )
         });
         let (c, t0, t1, names) = entry;
-        *t0 = (*t0).min(e.ts);
+        if e.ts < *t0 {
+            // The mapper of the changeset's first edit, whatever order the edits come in.
+            if c.uid != e.uid {
+                c.uid = e.uid;
+                c.user = e.user.to_string();
+            }
+            *t0 = e.ts;
+        }
         *t1 = (*t1).max(e.ts);
         c.edits += 1;
         match e.op {

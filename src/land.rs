@@ -249,6 +249,11 @@ impl Land {
         if self.is_land(c) {
             return Some(0.0);
         }
+        Some(self.water_distance_m(c))
+    }
+
+    /// Distance in metres from a point in water to the nearest land.
+    fn water_distance_m(&self, c: Coord) -> f64 {
         let p = Point::new(c.lon(), c.lat());
         let best = self
             .edges
@@ -271,7 +276,79 @@ impl Land {
                 }
             })
             .fold(f64::INFINITY, f64::min);
-        Some(best)
+        best
+    }
+
+    /// Whether no coastline edge comes near the box (so every point in it is on the same side).
+    fn no_edge_near(&self, min: [f64; 2], max: [f64; 2]) -> bool {
+        // The margin keeps rounding in the ray cast's crossing test from mattering.
+        const MARGIN: f64 = 1e-9;
+        let b = AABB::from_corners(
+            [min[0] - MARGIN, min[1] - MARGIN],
+            [max[0] + MARGIN, max[1] + MARGIN],
+        );
+        self.edges
+            .locate_in_envelope_intersecting(b)
+            .next()
+            .is_none()
+    }
+}
+
+/// [`Land::is_land`] and [`Land::distance_to_land_m`] for many points, remembering for each
+/// 0.01° square met whether no coastline edge comes near it and, if so, whether it is land: a
+/// point in such a square has the answer of the square's centre (the even-odd count only
+/// changes across an edge), so most points need no ray cast. Same answers as [`Land`].
+pub struct LandLookup<'a> {
+    land: &'a Land,
+    /// Per square (row and column of 0.01° from 90° S, 180° W): `Some(is land)` when no edge
+    /// comes near it, `None` when one does.
+    squares: std::collections::HashMap<(i64, i64), Option<bool>>,
+}
+
+impl<'a> LandLookup<'a> {
+    /// Side of a square, in 1e-7 degrees.
+    const SQUARE_E7: i64 = 100_000;
+
+    /// A lookup over `land` with nothing remembered yet.
+    #[must_use]
+    pub fn new(land: &'a Land) -> Self {
+        Self {
+            land,
+            squares: std::collections::HashMap::new(),
+        }
+    }
+
+    /// As [`Land::is_land`].
+    pub fn is_land(&mut self, c: Coord) -> bool {
+        let row = (i64::from(c.lat_e7()) + 900_000_000).div_euclid(Self::SQUARE_E7);
+        let col = (i64::from(c.lon_e7()) + 1_800_000_000).div_euclid(Self::SQUARE_E7);
+        let land = self.land;
+        let known = *self.squares.entry((row, col)).or_insert_with(|| {
+            #[allow(
+                clippy::cast_precision_loss,
+                reason = "square corners are small integers"
+            )]
+            let deg = |v: i64, base: i64| (v * Self::SQUARE_E7 - base) as f64 / 1e7;
+            let min = [deg(col, 1_800_000_000), deg(row, 900_000_000)];
+            let max = [deg(col + 1, 1_800_000_000), deg(row + 1, 900_000_000)];
+            if !land.no_edge_near(min, max) {
+                return None;
+            }
+            let centre = Coord::from_degrees((min[1] + max[1]) / 2.0, (min[0] + max[0]) / 2.0);
+            centre.map(|m| land.is_land(m))
+        });
+        known.unwrap_or_else(|| land.is_land(c))
+    }
+
+    /// As [`Land::distance_to_land_m`].
+    pub fn distance_to_land_m(&mut self, c: Coord) -> Option<f64> {
+        if self.land.edges.size() == 0 {
+            return None;
+        }
+        if self.is_land(c) {
+            return Some(0.0);
+        }
+        Some(self.land.water_distance_m(c))
     }
 }
 
@@ -304,5 +381,45 @@ mod tests {
         assert!(!w.is_land(at(0.0, -150.0)));
         let d = w.distance_to_land_m(at(45.2, -33.6)).unwrap();
         assert!(d > 500_000.0, "{d}");
+    }
+
+    #[test]
+    fn the_square_lookup_answers_as_the_layer_does() {
+        use rand::{Rng, SeedableRng};
+        // The world layer around a ragged coast with islands and lakes (the Baltic and the
+        // lakes of Finland), points at random and on a fine grid that crosses square edges.
+        let w = Land::world().unwrap();
+        let mut look = LandLookup::new(&w);
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        let mut points: Vec<Coord> = (0..20_000)
+            .map(|_| {
+                Coord::from_degrees(rng.gen_range(59.0..61.5), rng.gen_range(21.0..26.0)).unwrap()
+            })
+            .collect();
+        for i in 0..200 {
+            for j in 0..50 {
+                let lat = 60.0 + f64::from(i) * 0.0025;
+                let lon = 24.9 + f64::from(j) * 0.0025;
+                points.push(Coord::from_degrees(lat, lon).unwrap());
+            }
+        }
+        let (mut land, mut water) = (0, 0);
+        for p in points {
+            let want = w.is_land(p);
+            assert_eq!(look.is_land(p), want, "{p:?}");
+            assert_eq!(look.distance_to_land_m(p), w.distance_to_land_m(p), "{p:?}");
+            if want {
+                land += 1;
+            } else {
+                water += 1;
+            }
+        }
+        assert!(land > 5_000 && water > 5_000, "{land} {water}");
+        let uniform = look.squares.values().filter(|v| v.is_some()).count();
+        assert!(
+            uniform > look.squares.len() / 4,
+            "{uniform} of {}",
+            look.squares.len()
+        );
     }
 }

@@ -227,87 +227,121 @@ pub fn load_edits(
     from: i64,
     to: i64,
 ) -> Result<(Vec<Edit>, HashMap<i64, ChangesetMeta>), StoreError> {
-    let coord = |p: Option<(i32, i32)>| p.and_then(|(a, b)| Coord::from_e7(a.into(), b.into()));
-    let rows = store.edits(from, to)?.into_iter().map(|e| {
-        let pos = coord(e.pos);
-        let (prev_tags, prev_version, prev_ts, prev_pos) = match e.prev {
-            Some(p) => (Some(p.tags), Some(p.version), p.ts, coord(p.pos)),
-            None => (None, None, None, None),
-        };
-        (
-            Edit {
-                etype: e.etype,
-                eid: e.eid,
-                version: e.version,
-                op: e.op,
-                changeset: e.changeset,
-                uid: e.uid,
-                user: e.user,
-                ts: e.ts,
-                pos,
-                placed_by: if pos.is_some() {
-                    PlacedBy::Own
-                } else {
-                    PlacedBy::Unplaced
-                },
-                tags: e.tags,
-                prev_tags,
-                prev_version,
-                prev_ts,
-                prev_pos,
+    Locator::new(store)?.load(from, to)
+}
+
+/// Loads and places the edits of one window after another with one open node-location index,
+/// whose block cache serves them all.
+pub struct Locator<'a> {
+    index: Positions<'a>,
+}
+
+impl<'a> Locator<'a> {
+    /// Opens the committed node-location index.
+    ///
+    /// # Errors
+    /// On database failure or an unreadable index.
+    pub fn new(store: &'a Store) -> Result<Self, StoreError> {
+        Ok(Self {
+            index: Positions {
+                store,
+                nodes: store.node_index()?,
+                cache: foldhash::HashMap::default(),
             },
-            e.refs,
-        )
-    });
-    let mut edits = Vec::new();
-    let mut index = Positions {
-        store,
-        nodes: store.node_index()?,
-        cache: foldhash::HashMap::default(),
-    };
-    let mut pending = Vec::new();
-    for (mut e, refs) in rows {
-        if e.pos.is_none() {
-            let refs = match refs {
-                Some(r) => Some(r),
-                None if e.etype != ElementType::Node => index.stored_refs(e.etype, e.eid)?,
-                None => None,
+        })
+    }
+
+    /// Loads and places every edit with `from <= ts < to`, ordered by time, with the metadata
+    /// of their changesets.
+    ///
+    /// # Errors
+    /// On database failure.
+    pub fn load(
+        &mut self,
+        from: i64,
+        to: i64,
+    ) -> Result<(Vec<Edit>, HashMap<i64, ChangesetMeta>), StoreError> {
+        let store = self.index.store;
+        let index = &mut self.index;
+        // Node positions are cached for one window at a time, so memory follows the window.
+        index.cache.clear();
+        let coord = |p: Option<(i32, i32)>| p.and_then(|(a, b)| Coord::from_e7(a.into(), b.into()));
+        let rows = store.edits(from, to)?.into_iter().map(|e| {
+            let pos = coord(e.pos);
+            let (prev_tags, prev_version, prev_ts, prev_pos) = match e.prev {
+                Some(p) => (Some(p.tags), Some(p.version), p.ts, coord(p.pos)),
+                None => (None, None, None, None),
             };
-            let c = match e.etype {
-                ElementType::Node => index.node(e.eid)?.or(e.prev_pos),
-                ElementType::Way => match refs {
-                    Some(r) => index.way_centroid(&r)?,
-                    None => None,
+            (
+                Edit {
+                    etype: e.etype,
+                    eid: e.eid,
+                    version: e.version,
+                    op: e.op,
+                    changeset: e.changeset,
+                    uid: e.uid,
+                    user: e.user,
+                    ts: e.ts,
+                    pos,
+                    placed_by: if pos.is_some() {
+                        PlacedBy::Own
+                    } else {
+                        PlacedBy::Unplaced
+                    },
+                    tags: e.tags,
+                    prev_tags,
+                    prev_version,
+                    prev_ts,
+                    prev_pos,
                 },
-                ElementType::Relation => match refs {
-                    Some(r) => index.relation_centroid(&r)?,
+                e.refs,
+            )
+        });
+        let mut edits = Vec::with_capacity(rows.len());
+        let mut pending = Vec::new();
+        for (mut e, refs) in rows {
+            if e.pos.is_none() {
+                let refs = match refs {
+                    Some(r) => Some(r),
+                    None if e.etype != ElementType::Node => index.stored_refs(e.etype, e.eid)?,
                     None => None,
-                },
-            };
-            if let Some(c) = c {
-                e.pos = Some(c);
-                e.placed_by = PlacedBy::NodeIndex;
-            } else {
-                pending.push(edits.len());
+                };
+                let c = match e.etype {
+                    ElementType::Node => index.node(e.eid)?.or(e.prev_pos),
+                    ElementType::Way => match refs {
+                        Some(r) => index.way_centroid(&r)?,
+                        None => None,
+                    },
+                    ElementType::Relation => match refs {
+                        Some(r) => index.relation_centroid(&r)?,
+                        None => None,
+                    },
+                };
+                if let Some(c) = c {
+                    e.pos = Some(c);
+                    e.placed_by = PlacedBy::NodeIndex;
+                } else {
+                    pending.push(edits.len());
+                }
+            }
+            edits.push(e);
+        }
+        let mut ids: Vec<i64> = edits.iter().map(|e| e.changeset).collect();
+        ids.sort_unstable();
+        ids.dedup();
+        let metas = load_changesets(store, ids)?;
+        for i in pending {
+            let e = &mut edits[i];
+            if let Some((lo, hi)) = metas.get(&e.changeset).and_then(|m| m.bbox) {
+                e.pos = Coord::from_e7(
+                    (i64::from(lo.lat_e7()) + i64::from(hi.lat_e7())) / 2,
+                    (i64::from(lo.lon_e7()) + i64::from(hi.lon_e7())) / 2,
+                );
+                e.placed_by = PlacedBy::ChangesetBox;
             }
         }
-        edits.push(e);
+        Ok((edits, metas))
     }
-    let mut ids: Vec<i64> = edits.iter().map(|e| e.changeset).collect();
-    ids.sort_unstable();
-    ids.dedup();
-    let metas = load_changesets(store, ids)?;
-    for i in pending {
-        let e = &mut edits[i];
-        if let Some((lo, hi)) = metas.get(&e.changeset).and_then(|m| m.bbox) {
-            e.pos = Coord::from_e7(
-                (i64::from(lo.lat_e7()) + i64::from(hi.lat_e7())) / 2,
-                (i64::from(lo.lon_e7()) + i64::from(hi.lon_e7())) / 2,
-            );
-            e.placed_by = PlacedBy::ChangesetBox;
-        }
-    }
-    Ok((edits, metas))
 }
 
 /// Adds one edit's placement to the counts.

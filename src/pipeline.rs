@@ -14,7 +14,7 @@ use crate::detect::{detect, DetectConfig};
 use crate::features::{changeset_features, edit_facts, ExistingData, FeatureConfig, MapperHistory};
 use crate::labels::RevertIndex;
 use crate::land::{Land, LandError, LandSource};
-use crate::locate::{load_edits, ChangesetMeta, Edit};
+use crate::locate::{ChangesetMeta, Edit, Locator};
 use crate::measure::{heat_cells, Measure};
 use crate::model::IsoWeek;
 use crate::progress::Progress;
@@ -287,15 +287,19 @@ pub fn count(
     let reverts = RevertIndex::load(store)?;
     let existing = ExistingData::load(store)?;
     let hist = MapperHistory::load(store, uids, &reverts)?;
+    let mut locator = Locator::new(store)?;
     let res = match opts.resolution {
         Some(r) => r,
         None => {
-            let (edits, _) = load_edits(
-                store,
+            let (edits, _) = locator.load(
                 resolution_week.start_unix(),
                 resolution_week.offset(1).start_unix(),
             )?;
-            let ext = bbox_of(edits.iter().filter_map(|e| e.pos.map(|p| (p.lon(), p.lat()))));
+            let ext = bbox_of(
+                edits
+                    .iter()
+                    .filter_map(|e| e.pos.map(|p| (p.lon(), p.lat()))),
+            );
             let km = ext.map_or(0.0, |r| {
                 let a = crate::model::Coord::from_degrees(r.min().y, r.min().x);
                 let b = crate::model::Coord::from_degrees(r.max().y, r.max().x);
@@ -312,14 +316,13 @@ pub fn count(
     for k in 0..weeks {
         let week = first_week.offset(i64::try_from(k).unwrap_or(i64::MAX));
         let week_end = week.offset(1).start_unix();
-        let (loaded, mut metas) = load_edits(store, week.start_unix(), week_end)?;
+        let (mut ready, mut metas) = locator.load(week.start_unix(), week_end)?;
+        // The order of a batch's edits does not matter to the steps below.
+        ready.append(&mut waiting);
         metas.extend(waiting_metas.drain());
-        let mut edits = std::mem::take(&mut waiting);
-        edits.extend(loaded);
         // Changesets with edits after this week wait, with their metadata, for a later week.
         let done = |cs: i64| times.changeset_last.get(&cs).is_none_or(|&t| t < week_end);
-        let (ready, later): (Vec<Edit>, Vec<Edit>) =
-            edits.into_iter().partition(|e| done(e.changeset));
+        let later: Vec<Edit> = ready.extract_if(.., |e| !done(e.changeset)).collect();
         for e in &later {
             if let Some(m) = metas.remove(&e.changeset) {
                 waiting_metas.insert(e.changeset, m);

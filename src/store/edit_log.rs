@@ -290,7 +290,6 @@ impl<'a> Cursor<'a> {
         self.at = end;
         Ok(b)
     }
-
 }
 
 /// One edit as it lies in a block: numbers decoded, text and refs still borrowed.
@@ -435,7 +434,9 @@ pub fn decode(
             user: match names.get(&e.uid) {
                 Some(n) => n.clone(),
                 None => {
-                    let raw = users.get(&e.uid).ok_or_else(|| fail("mapper without a name"))?;
+                    let raw = users
+                        .get(&e.uid)
+                        .ok_or_else(|| fail("mapper without a name"))?;
                     let n: std::sync::Arc<str> = text(raw)?.into();
                     names.insert(e.uid, n.clone());
                     n
@@ -477,7 +478,7 @@ pub fn scan(data: &[u8], mut f: impl FnMut(i64, i64, i64)) -> Result<(), DecodeE
 /// a time must find both copies in the same week. Sorts small keys, not the edits: moving whole
 /// edits around in a sort was a seventh of a report's time.
 #[must_use]
-pub fn dedup_sorted(edits: Vec<StoredEdit>) -> Vec<StoredEdit> {
+pub fn dedup_sorted(mut edits: Vec<StoredEdit>) -> Vec<StoredEdit> {
     let mut order: Vec<(i64, i64, i64, i64, usize)> = edits
         .iter()
         .enumerate()
@@ -486,11 +487,29 @@ pub fn dedup_sorted(edits: Vec<StoredEdit>) -> Vec<StoredEdit> {
     // The position breaks ties, so the first copy read comes first and survives the dedup.
     order.sort_unstable();
     order.dedup_by(|b, a| (a.0, a.1, a.2, a.3) == (b.0, b.1, b.2, b.3));
-    let mut slots: Vec<Option<StoredEdit>> = edits.into_iter().map(Some).collect();
-    order
-        .into_iter()
-        .filter_map(|o| slots.get_mut(o.4).and_then(Option::take))
-        .collect()
+    let kept = order.len();
+    // Where each edit goes: the kept ones in order, then the repeats (dropped).
+    let mut dest = vec![usize::MAX; edits.len()];
+    for (j, o) in order.iter().enumerate() {
+        dest[o.4] = j;
+    }
+    let mut next = kept;
+    for d in &mut dest {
+        if *d == usize::MAX {
+            *d = next;
+            next += 1;
+        }
+    }
+    // Moves each edit once, following the permutation's cycles, without a second vector.
+    for i in 0..edits.len() {
+        while dest[i] != i {
+            let j = dest[i];
+            edits.swap(i, j);
+            dest.swap(i, j);
+        }
+    }
+    edits.truncate(kept);
+    edits
 }
 
 #[cfg(test)]
@@ -597,6 +616,30 @@ mod tests {
         let mut out = Vec::new();
         assert!(decode(&[9, 0], |_| true, &mut out).is_err());
         assert!(decode(&block.data[..block.data.len() - 1], |_| true, &mut out).is_err());
+    }
+
+    #[test]
+    fn dedup_matches_a_plain_sort_and_filter() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        for n in [0usize, 1, 2, 5, 50, 500] {
+            // Few distinct keys, so repeats (with other payloads) are common.
+            let edits: Vec<StoredEdit> = (0..n)
+                .map(|i| {
+                    let mut e = sample(i as i64);
+                    e.ts = rng.gen_range(0..8);
+                    e.eid = rng.gen_range(0..4);
+                    e.version = rng.gen_range(1..3);
+                    e
+                })
+                .collect();
+            let mut want: Vec<(usize, StoredEdit)> = edits.iter().cloned().enumerate().collect();
+            want.sort_by_key(|(i, e)| (e.ts, e.etype.code(), e.eid, e.version, *i));
+            let mut seen = std::collections::HashSet::new();
+            want.retain(|(_, e)| seen.insert((e.ts, e.etype.code(), e.eid, e.version)));
+            let want: Vec<StoredEdit> = want.into_iter().map(|(_, e)| e).collect();
+            assert_eq!(dedup_sorted(edits), want, "n = {n}");
+        }
     }
 
     #[test]

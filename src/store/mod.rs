@@ -496,7 +496,15 @@ impl Store {
     /// # Errors
     /// On SQLite failure or a damaged block.
     pub fn edits(&self, from: i64, to: i64) -> Result<Vec<edit_log::StoredEdit>, StoreError> {
-        let mut out = Vec::new();
+        let most: i64 = self
+            .conn
+            .query_row(
+                "SELECT COALESCE(SUM(edits), 0) FROM edit_blocks WHERE max_ts >= ?1 AND min_ts < ?2",
+                params![from, to],
+                |r| r.get(0),
+            )
+            .map_err(|e| self.map_err(e))?;
+        let mut out = Vec::with_capacity(usize::try_from(most).unwrap_or(0));
         self.for_each_edit_block(from, to, |data| {
             edit_log::decode(data, |t| t >= from && t < to, &mut out)
         })?;
