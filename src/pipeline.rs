@@ -270,11 +270,106 @@ pub fn count(
     resolution_week: IsoWeek,
     land: &Land,
     opts: &ReportOptions,
+    progress: &Progress,
 ) -> Result<Counted, PipelineError> {
     let weeks = usize::try_from(last_week.ordinal() - first_week.ordinal() + 1).unwrap_or(0);
     let from = first_week.start_unix();
-    let to = last_week.offset(1).start_unix();
-    let times = store.edit_times(from, to)?;
+    let week_spans: Vec<(i64, i64)> = (0..weeks)
+        .map(|k| {
+            let w = first_week.offset(i64::try_from(k).unwrap_or(i64::MAX));
+            (w.start_unix(), w.offset(1).start_unix())
+        })
+        .collect();
+    let extent_span = opts.resolution.is_none().then(|| {
+        (
+            resolution_week.start_unix(),
+            resolution_week.offset(1).start_unix(),
+        )
+    });
+    std::thread::scope(|scope| {
+        // A second connection loads and places the weeks' edits, one week ahead of the
+        // counting below (a core each when there are two).
+        let (tx, rx) = std::sync::mpsc::sync_channel(1);
+        let path = store.path().to_owned();
+        let spans = week_spans.clone();
+        scope.spawn(move || load_weeks(&path, extent_span, &spans, &tx));
+        count_loaded(
+            store,
+            &rx,
+            first_week,
+            last_week,
+            from,
+            &week_spans,
+            land,
+            opts,
+            progress,
+        )
+    })
+}
+
+/// What the loading thread of [`count`] sends: the size of the area edited in the resolution
+/// week (km across), then each week's placed edits with their changesets' metadata.
+enum Loaded {
+    ExtentKm(f64),
+    Week(Vec<Edit>, HashMap<i64, ChangesetMeta>),
+}
+
+/// The loading thread of [`count`]: opens its own connection and sends what it loads, or the
+/// first error; stops early when the receiver is gone.
+fn load_weeks(
+    path: &Path,
+    extent_span: Option<(i64, i64)>,
+    weeks: &[(i64, i64)],
+    tx: &std::sync::mpsc::SyncSender<Result<Loaded, StoreError>>,
+) {
+    let run = || -> Result<(), StoreError> {
+        let store = Store::open(path)?;
+        let mut locator = Locator::new(&store)?;
+        if let Some((a, b)) = extent_span {
+            let (edits, _) = locator.load(a, b)?;
+            let ext = bbox_of(
+                edits
+                    .iter()
+                    .filter_map(|e| e.pos.map(|p| (p.lon(), p.lat()))),
+            );
+            let km = ext.map_or(0.0, |r| {
+                let a = crate::model::Coord::from_degrees(r.min().y, r.min().x);
+                let b = crate::model::Coord::from_degrees(r.max().y, r.max().x);
+                a.zip(b).map_or(0.0, |(a, b)| a.distance_m(b) / 1000.0)
+            });
+            if tx.send(Ok(Loaded::ExtentKm(km))).is_err() {
+                return Ok(());
+            }
+        }
+        for &(a, b) in weeks {
+            let (edits, metas) = locator.load(a, b)?;
+            if tx.send(Ok(Loaded::Week(edits, metas))).is_err() {
+                return Ok(());
+            }
+        }
+        Ok(())
+    };
+    if let Err(e) = run() {
+        // The receiver may be gone already; then nobody needs the error.
+        let _ = tx.send(Err(e));
+    }
+}
+
+/// The counting side of [`count`].
+#[allow(clippy::too_many_arguments, reason = "the parts of one window, named")]
+fn count_loaded(
+    store: &Store,
+    rx: &std::sync::mpsc::Receiver<Result<Loaded, StoreError>>,
+    first_week: IsoWeek,
+    last_week: IsoWeek,
+    from: i64,
+    week_spans: &[(i64, i64)],
+    land: &Land,
+    opts: &ReportOptions,
+    progress: &Progress,
+) -> Result<Counted, PipelineError> {
+    let weeks = week_spans.len();
+    let times = store.edit_times(from, last_week.offset(1).start_unix())?;
     if times.last_ts.is_none_or(|t| t < last_week.start_unix()) {
         return Err(PipelineError::NoData {
             path: store.path().to_owned(),
@@ -287,36 +382,28 @@ pub fn count(
     let reverts = RevertIndex::load(store)?;
     let existing = ExistingData::load(store)?;
     let hist = MapperHistory::load(store, uids, &reverts)?;
-    let mut locator = Locator::new(store)?;
+    let lost = || PipelineError::NoData {
+        path: store.path().to_owned(),
+        message: "the thread loading edits stopped".to_owned(),
+    };
+    let next = || rx.recv().map_err(|_| lost())?.map_err(PipelineError::from);
     let res = match opts.resolution {
         Some(r) => r,
-        None => {
-            let (edits, _) = locator.load(
-                resolution_week.start_unix(),
-                resolution_week.offset(1).start_unix(),
-            )?;
-            let ext = bbox_of(
-                edits
-                    .iter()
-                    .filter_map(|e| e.pos.map(|p| (p.lon(), p.lat()))),
-            );
-            let km = ext.map_or(0.0, |r| {
-                let a = crate::model::Coord::from_degrees(r.min().y, r.min().x);
-                let b = crate::model::Coord::from_degrees(r.max().y, r.max().x);
-                a.zip(b).map_or(0.0, |(a, b)| a.distance_m(b) / 1000.0)
-            });
-            default_resolution(km)
-        }
+        None => match next()? {
+            Loaded::ExtentKm(km) => default_resolution(km),
+            Loaded::Week(..) => return Err(lost()),
+        },
     };
     let threshold = opts.flag_threshold;
     let mut counter = CellCounter::new(res, weeks);
     let mut changesets: HashMap<i64, ScoredChangeset> = HashMap::new();
     let mut waiting: Vec<Edit> = Vec::new();
     let mut waiting_metas: HashMap<i64, ChangesetMeta> = HashMap::new();
-    for k in 0..weeks {
-        let week = first_week.offset(i64::try_from(k).unwrap_or(i64::MAX));
-        let week_end = week.offset(1).start_unix();
-        let (mut ready, mut metas) = locator.load(week.start_unix(), week_end)?;
+    let bar = progress.steps(weeks as u64, "weeks counted");
+    for &(_, week_end) in week_spans {
+        let Loaded::Week(mut ready, mut metas) = next()? else {
+            return Err(lost());
+        };
         // The order of a batch's edits does not matter to the steps below.
         ready.append(&mut waiting);
         metas.extend(waiting_metas.drain());
@@ -356,7 +443,9 @@ pub fn count(
             .collect();
         let flagged = |cs: i64| changesets.get(&cs).is_some_and(|s| s.score >= threshold);
         counter.add(&ready, &facts, &week_of, &flagged);
+        bar.inc(1);
     }
+    bar.finish();
     let (cell_weeks, changeset_cells) =
         counter.finish(&|cs| changesets.get(&cs).map_or(0.0, |s| s.score));
     Ok(Counted {
@@ -385,7 +474,7 @@ pub fn analyse(
     ));
     let land = opts.land.load()?;
     let regions = load_regions(opts)?;
-    let counted = count(store, first_week, week, week, &land, opts)?;
+    let counted = count(store, first_week, week, week, &land, opts, progress)?;
     let mut analysis = analyse_counted(counted, &regions, land, store.skipped()?, opts, progress);
     analysis.roads = main_roads(store, &analysis, opts, progress)?;
     Ok(analysis)

@@ -546,7 +546,15 @@ pub fn export(
         Some(p) => crate::regions::load(p)?,
         None => crate::regions::everything(),
     };
-    let counted = crate::pipeline::count(store, first_week, last_week, default_week, &land, opts)?;
+    let counted = crate::pipeline::count(
+        store,
+        first_week,
+        last_week,
+        default_week,
+        &land,
+        opts,
+        progress,
+    )?;
     prepare_folder(out)?;
     let summary = write_tables(out, &counted, &regions, opts, progress)?;
     let manifest = Manifest {
