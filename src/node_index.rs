@@ -174,6 +174,8 @@ struct BlockCache {
     /// Per slot, the block it holds (`usize::MAX`: none) and its entry count.
     tags: Vec<(usize, usize)>,
     bytes: Vec<u8>,
+    /// The block of the last lookup.
+    last_block: usize,
 }
 
 impl BlockCache {
@@ -318,16 +320,25 @@ impl NodeIndex {
         let Some(file) = &self.file else {
             return Ok(None);
         };
-        let b = self.dir.partition_point(|d| d.0 <= id);
-        let Some(b) = b.checked_sub(1) else {
-            return Ok(None);
+        let mut cache = self.cache.borrow_mut();
+        // Neighbouring lookups (the nodes of a way) usually fall in the block of the last one.
+        let last = cache.last_block;
+        let b = if self.dir.get(last).is_some_and(|d| d.0 <= id)
+            && self.dir.get(last + 1).is_none_or(|d| id < d.0)
+        {
+            last
+        } else {
+            let Some(b) = self.dir.partition_point(|d| d.0 <= id).checked_sub(1) else {
+                return Ok(None);
+            };
+            cache.last_block = b;
+            b
         };
         let (base, first) = self.dir[b];
         // Ids span the whole i64 range (negative ones too), so the difference may overflow.
         let Some(offset) = id.checked_sub(base).and_then(|d| u32::try_from(d).ok()) else {
             return Ok(None);
         };
-        let mut cache = self.cache.borrow_mut();
         let (k, hit) = cache.slot(b);
         if !hit {
             let n = usize::try_from(self.block_end(b) - first)
