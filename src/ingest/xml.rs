@@ -15,7 +15,10 @@
 
 use std::io::{BufRead, Read};
 
-use quick_xml::events::{BytesStart, Event};
+use quick_xml::errors::{Error as XmlError, IllFormedError};
+use quick_xml::events::{BytesEnd, BytesStart, Event};
+use quick_xml::parser::{ElementParser, Parser};
+use quick_xml::utils::{is_whitespace, name_len};
 use quick_xml::Reader;
 
 use crate::model::{Coord, ElementType, Op};
@@ -179,7 +182,11 @@ pub enum Root {
 /// coordinate attribute, or a size limit exceeded; [`ReadError::Sink`] when the sink fails.
 pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, ReadError> {
     let mut reader = Reader::from_reader(EventCap::new(input));
-    reader.config_mut().trim_text(true);
+    let config = reader.config_mut();
+    config.trim_text(true);
+    // End tags are checked here against `open`: the fast lane reads tags quick-xml never sees.
+    config.check_end_names = false;
+    config.allow_unmatched_ends = true;
     let mut buf = Vec::with_capacity(4096);
     let mut el = RawElement::default();
     let mut cs = RawChangeset::default();
@@ -191,32 +198,68 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
     let mut open_element = false;
     let mut open_changeset = false;
     let mut depth = 0usize;
+    let mut open = OpenNames::default();
+    // Bytes read by the fast lane, which quick-xml's positions do not count.
+    let mut fast_bytes = 0u64;
+    // quick-xml stands between two tags (its last event was a tag), where the fast lane may
+    // read the next tag in its place.
+    let mut between_tags = false;
+
+    // Bytes of the last fast-lane tag, skipped at the start of the next round (its event borrows
+    // them until then).
+    let mut owed = 0usize;
 
     loop {
-        let before = reader.buffer_position();
-        reader.get_mut().start_event();
-        let event = reader.read_event_into(&mut buf);
-        if let Some(skipped) = reader.get_ref().too_long() {
-            return Err(ReadError::Parse(ParseError {
-                offset: before + skipped,
-                message: format!(
-                    "an XML tag or text run longer than {MAX_EVENT_BYTES} bytes; no valid OSM \
-                     element needs one so long"
-                ),
-            }));
+        buf.clear();
+        if owed > 0 {
+            reader.get_mut().skip(owed);
+            fast_bytes += owed as u64;
+            owed = 0;
         }
-        let event = event.map_err(|e| {
-            ReadError::Parse(ParseError {
-                offset: reader.error_position(),
-                message: format!("malformed XML: {e}"),
-            })
-        })?;
-        // Errors point at the start of the tag: the reader stands just past its '>', and the
-        // event holds the text between '<' and '>' (without an empty tag's '/').
-        let pos = match &event {
-            Event::Start(e) => reader.buffer_position().saturating_sub(e.len() as u64 + 2),
-            Event::Empty(e) => reader.buffer_position().saturating_sub(e.len() as u64 + 3),
-            _ => before,
+        let base = reader.buffer_position() + fast_bytes;
+        let lane = if between_tags && root.is_some() {
+            let end_ok = open.top_is_fast();
+            reader.get_mut().next_tag(end_ok)
+        } else {
+            None
+        };
+        let (event, pos, end_pos, fast) = if let Some((ws, len, event)) = lane {
+            owed = ws + len;
+            let at = base + ws as u64;
+            (event, at, at, true)
+        } else {
+            let before = base;
+            reader.get_mut().start_event();
+            let event = reader.read_event_into(&mut buf);
+            if let Some(skipped) = reader.get_ref().too_long() {
+                return Err(ReadError::Parse(ParseError {
+                    offset: before + skipped,
+                    message: format!(
+                        "an XML tag or text run longer than {MAX_EVENT_BYTES} bytes; no valid OSM \
+                         element needs one so long"
+                    ),
+                }));
+            }
+            let event = event.map_err(|e| {
+                // quick-xml gives 0 for errors it has no position for (in text, say); a position
+                // it gives is counted from its first byte, before any fast-lane tag.
+                let at = reader.error_position();
+                ReadError::Parse(ParseError {
+                    offset: if at == 0 { 0 } else { at + fast_bytes },
+                    message: format!("malformed XML: {e}"),
+                })
+            })?;
+            between_tags = matches!(event, Event::Start(_) | Event::Empty(_) | Event::End(_));
+            // Errors point at the start of the tag: the reader stands just past its '>', and
+            // the event holds the text between '<' and '>' (without an empty tag's '/'). An end
+            // tag's name is trimmed, so its length is counted as it is consumed.
+            let after = reader.buffer_position() + fast_bytes;
+            let pos = match &event {
+                Event::Start(e) => after.saturating_sub(e.len() as u64 + 2),
+                Event::Empty(e) => after.saturating_sub(e.len() as u64 + 3),
+                _ => before,
+            };
+            (event, pos, after.saturating_sub(reader.get_ref().tag_len()), false)
         };
         let perr = |message: String| {
             ReadError::Parse(ParseError {
@@ -231,6 +274,7 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                 let name = name.as_ref().as_bytes();
                 if !empty {
                     depth += 1;
+                    open.push(e.name().as_ref(), fast);
                 }
                 match root {
                     None => {
@@ -314,6 +358,12 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
                 }
             }
             Event::End(ref e) => {
+                open.close(e.name().as_ref()).map_err(|e| {
+                    ReadError::Parse(ParseError {
+                        offset: end_pos,
+                        message: format!("malformed XML: {e}"),
+                    })
+                })?;
                 depth = depth.saturating_sub(1);
                 let name = e.name();
                 let name = name.as_ref().as_bytes();
@@ -348,7 +398,6 @@ pub fn read_osm<R: BufRead>(input: R, sink: &mut impl OsmSink) -> Result<Root, R
             }
             _ => {}
         }
-        buf.clear();
     }
     root.ok_or_else(|| {
         ReadError::Parse(ParseError {
@@ -373,11 +422,23 @@ struct EventCap<R> {
     skipped: u64,
     /// Bytes of the event consumed so far.
     counted: u64,
+    /// Bytes consumed since the event began.
+    in_event: u64,
+    /// `in_event` when the event's first `<` was consumed.
+    tag_start: Option<u64>,
+    /// The inner reader reported its end when the fast lane topped the buffer up.
+    ended: bool,
+    /// An error the inner reader gave when the fast lane topped the buffer up, passed on when
+    /// the XML reader reaches it.
+    failed: Option<std::io::Error>,
 }
 
 impl<R: Read> EventCap<R> {
     /// Large enough that a buffer refill is rare against the per-event cost.
     const CAPACITY: usize = 1 << 17;
+    /// The fast lane tops the buffer up when less than this is left (a tag of a way with
+    /// many nodes or a long value is still read whole by quick-xml).
+    const TOP_UP: usize = 1 << 13;
 
     fn new(inner: R) -> Self {
         Self {
@@ -388,6 +449,80 @@ impl<R: Read> EventCap<R> {
             leading: true,
             skipped: 0,
             counted: 0,
+            in_event: 0,
+            tag_start: None,
+            ended: false,
+            failed: None,
+        }
+    }
+
+    /// Bytes consumed from the event's first `<` on: the length of a tag just read.
+    fn tag_len(&self) -> u64 {
+        self.tag_start.map_or(0, |at| self.in_event - at)
+    }
+
+    /// The fast lane: the next tag, when it lies whole in the buffer after whitespace, as
+    /// quick-xml would read it (its tag parser finds the closing `>`; start, empty and end tags
+    /// only, in valid UTF-8; an end tag only when `end_ok`). Returns the lengths of the
+    /// whitespace and the tag, and the event; the caller then [`skip`](Self::skip)s both.
+    /// Reading tags here instead of through quick-xml's buffered reader saves its copy of every
+    /// tag, its whitespace text and its per-event bookkeeping.
+    fn next_tag(&mut self, end_ok: bool) -> Option<(usize, usize, Event<'_>)> {
+        if self.end - self.start < Self::TOP_UP && !self.ended && self.failed.is_none() {
+            self.top_up();
+        }
+        let b = &self.buf[self.start..self.end];
+        let ws = b
+            .iter()
+            .position(|&c| !matches!(c, b' ' | b'\t' | b'\r' | b'\n'))?;
+        let tag = &b[ws..];
+        if tag.first() != Some(&b'<') {
+            return None;
+        }
+        let end = match tag.get(1)? {
+            b'!' | b'?' => return None,
+            b'/' if !end_ok => return None,
+            _ => ElementParser::Outside.feed(&tag[1..])? + 2,
+        };
+        let tag = std::str::from_utf8(&tag[..end]).ok()?;
+        let event = if let Some(name) = tag.strip_prefix("</") {
+            // As quick-xml: the name without the whitespace after it.
+            let name = &name[..name.len() - 1];
+            let name = match name.as_bytes().iter().rposition(|&c| !is_whitespace(c)) {
+                Some(last) => &name[..=last],
+                None => name,
+            };
+            Event::End(BytesEnd::new(name))
+        } else if let Some(content) = tag[1..].strip_suffix("/>") {
+            Event::Empty(BytesStart::from_content(content, name_len(content.as_bytes())))
+        } else {
+            let content = &tag[1..end - 1];
+            Event::Start(BytesStart::from_content(content, name_len(content.as_bytes())))
+        };
+        Some((ws, end, event))
+    }
+
+    /// Consumes what the fast lane read.
+    fn skip(&mut self, n: usize) {
+        self.start += n.min(self.end - self.start);
+    }
+
+    /// Moves what is left to the front of the buffer and reads more after it, so that tags
+    /// near the end of the buffer stay in the fast lane. An end of input or an error is
+    /// remembered and handed on when the XML reader comes to it.
+    #[cold]
+    fn top_up(&mut self) {
+        self.buf.copy_within(self.start..self.end, 0);
+        self.end -= self.start;
+        self.start = 0;
+        loop {
+            match self.inner.read(&mut self.buf[self.end..]) {
+                Ok(0) => self.ended = true,
+                Ok(n) => self.end += n,
+                Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
+                Err(e) => self.failed = Some(e),
+            }
+            break;
         }
     }
 
@@ -396,6 +531,8 @@ impl<R: Read> EventCap<R> {
         self.leading = true;
         self.skipped = 0;
         self.counted = 0;
+        self.in_event = 0;
+        self.tag_start = None;
     }
 
     /// The whitespace skipped before the event when the event is longer than the limit.
@@ -422,6 +559,9 @@ impl<R: Read> EventCap<R> {
     fn refill(&mut self) -> std::io::Result<()> {
         self.start = 0;
         self.end = 0;
+        if let Some(e) = self.failed.take() {
+            return Err(e);
+        }
         self.end = loop {
             match self.inner.read(&mut self.buf) {
                 Ok(n) => break n,
@@ -449,6 +589,10 @@ impl<R: Read> BufRead for EventCap<R> {
     fn consume(&mut self, n: usize) {
         let n = n.min(self.end - self.start);
         let taken = &self.buf[self.start..self.start + n];
+        if self.tag_start.is_none() && taken.first() == Some(&b'<') {
+            self.tag_start = Some(self.in_event);
+        }
+        self.in_event += n as u64;
         let event_bytes = if self.leading {
             // The same whitespace the XML reader skips between tags.
             match taken
@@ -470,6 +614,50 @@ impl<R: Read> BufRead for EventCap<R> {
         };
         self.counted += event_bytes as u64;
         self.start += n;
+    }
+}
+
+/// Names of the open elements, to check end tags as quick-xml would (its own check is off:
+/// it does not see the tags the fast lane reads).
+#[derive(Default)]
+struct OpenNames {
+    names: String,
+    /// Where each name starts in `names`, and whether the fast lane read its start tag.
+    starts: Vec<(usize, bool)>,
+}
+
+impl OpenNames {
+    fn push(&mut self, name: &str, fast: bool) {
+        self.starts.push((self.names.len(), fast));
+        self.names.push_str(name);
+    }
+
+    /// Whether the innermost open element's start tag came through the fast lane. Only then
+    /// may its end tag too: quick-xml keeps a list of the start tags it read and drops each
+    /// at the next end tag it reads, so that list stays as short as the nesting.
+    fn top_is_fast(&self) -> bool {
+        self.starts.last().is_some_and(|&(_, fast)| fast)
+    }
+
+    /// Closes the innermost element, with quick-xml's error when `name` does not match it or
+    /// nothing is open.
+    fn close(&mut self, name: &str) -> Result<(), XmlError> {
+        let Some((start, _)) = self.starts.pop() else {
+            return Err(XmlError::IllFormed(IllFormedError::UnmatchedEndTag(
+                name.to_owned(),
+            )));
+        };
+        let expected = &self.names[start..];
+        let result = if expected == name {
+            Ok(())
+        } else {
+            Err(XmlError::IllFormed(IllFormedError::MismatchedEndTag {
+                expected: expected.to_owned(),
+                found: name.to_owned(),
+            }))
+        };
+        self.names.truncate(start);
+        result
     }
 }
 
