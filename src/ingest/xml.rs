@@ -798,8 +798,6 @@ impl<'a> Plain<'a> {
     fn scan(b: &[u8], spans: &mut Spans) -> Result<(usize, usize), Fallback> {
         let mut n = 0;
         let mut i = 0;
-        // A key's length and first 8 bytes, compared before the key itself.
-        let mut marks = [0u64; MAX_PLAIN];
         loop {
             while i < b.len() && matches!(b[i], b' ' | b'\t' | b'\r' | b'\n') {
                 i += 1;
@@ -844,16 +842,14 @@ impl<'a> Plain<'a> {
                 }
             }
             let key = &b[key_start..key_end];
-            let mark = key
-                .iter()
-                .take(8)
-                .fold(key.len() as u64, |m, &c| m << 8 | u64::from(c));
+            // Lengths and first bytes tell most keys apart before their bytes are compared.
             if n == MAX_PLAIN
-                || (0..n).any(|j| marks[j] == mark && &b[spans[j].0..spans[j].1] == key)
+                || spans[..n].iter().any(|&(start, end, _, _)| {
+                    end - start == key.len() && b[start] == key[0] && &b[start..end] == key
+                })
             {
                 return Err(Fallback);
             }
-            marks[n] = mark;
             spans[n] = (key_start, key_end, value_start, i);
             n += 1;
             i += 1;
@@ -942,12 +938,14 @@ fn e7(v: &str) -> Result<i64, Fallback> {
         return Err(Fallback);
     }
     let mut n = 0i64;
-    for &c in whole.iter().chain(fraction) {
-        let d = c.wrapping_sub(b'0');
-        if d > 9 {
-            return Err(Fallback);
+    for part in [whole, fraction] {
+        for &c in part {
+            let d = c.wrapping_sub(b'0');
+            if d > 9 {
+                return Err(Fallback);
+            }
+            n = n * 10 + i64::from(d);
         }
-        n = n * 10 + i64::from(d);
     }
     n *= SCALE[fraction.len()];
     Ok(if negative { -n } else { n })
