@@ -251,87 +251,151 @@ fn load_regions(opts: &ReportOptions) -> Result<Vec<Region>, PipelineError> {
     })
 }
 
-/// Counts the weeks `first_week` to `last_week` from the database: loads and places their edits,
-/// scores the changesets (with `opts.scoring`, flagging at `opts.flag_threshold`) and buckets
-/// the edits into cells at `opts.resolution`, or by default at the resolution suited to the
-/// area edited in `resolution_week`.
+/// The weeks [`count`] counts.
+#[derive(Debug, Clone, Copy)]
+pub struct CountWeeks {
+    pub first: IsoWeek,
+    /// The last week, which must have edits.
+    pub last: IsoWeek,
+    /// Without `opts.resolution`, the resolution suits the area edited in this week.
+    pub resolution: IsoWeek,
+    /// Changesets with an edit in this week or later keep their user, comment, editor and
+    /// reasons; earlier ones keep their ids and score only (enough for weekly counts).
+    pub details_from: IsoWeek,
+}
+
+/// Counts the weeks `weeks.first` to `weeks.last` from the database: loads and places their
+/// edits, scores the changesets (with `opts.scoring`, flagging at `opts.flag_threshold`) and
+/// buckets the edits into cells at `opts.resolution`, or by default at the resolution suited to
+/// the area edited in `weeks.resolution`.
 ///
-/// Memory follows a week's edits, not the window's: a first pass reads only who edited when
-/// (each changeset's last edit, each mapper's first), then the edits are loaded a week at a
-/// time, and each changeset is scored and counted once all its edits in the window are loaded
-/// (a changeset still open at the end of a week waits for the next).
+/// Memory follows a part of the window, not the whole: a first pass reads only who edited when
+/// (each changeset's last edit, each mapper's first, edits per hour), then the edits are loaded
+/// in parts of at most [`PART_EDITS`] (by a second thread with its own connection), and each
+/// changeset is scored and counted once all its edits in the window are loaded (a changeset
+/// still open at the end of a part waits for the next).
 ///
 /// # Errors
-/// On database failure, or [`PipelineError::NoData`] when `last_week` has no edits.
+/// On database failure, or [`PipelineError::NoData`] when `weeks.last` has no edits.
 pub fn count(
     store: &Store,
-    first_week: IsoWeek,
-    last_week: IsoWeek,
-    resolution_week: IsoWeek,
+    weeks: CountWeeks,
     land: &Land,
     opts: &ReportOptions,
     progress: &Progress,
 ) -> Result<Counted, PipelineError> {
-    let weeks = usize::try_from(last_week.ordinal() - first_week.ordinal() + 1).unwrap_or(0);
+    let (first_week, last_week, resolution_week) = (weeks.first, weeks.last, weeks.resolution);
     let from = first_week.start_unix();
-    let week_spans: Vec<(i64, i64)> = (0..weeks)
-        .map(|k| {
-            let w = first_week.offset(i64::try_from(k).unwrap_or(i64::MAX));
-            (w.start_unix(), w.offset(1).start_unix())
-        })
-        .collect();
-    let extent_span = opts.resolution.is_none().then(|| {
-        (
-            resolution_week.start_unix(),
-            resolution_week.offset(1).start_unix(),
-        )
+    let to = last_week.offset(1).start_unix();
+    let times = store.edit_times(from, to)?;
+    if times.last_ts.is_none_or(|t| t < last_week.start_unix()) {
+        return Err(PipelineError::NoData {
+            path: store.path().to_owned(),
+            message: format!("no edits in the report week {last_week}"),
+        });
+    }
+    let parts = window_parts(from, to, &times.hourly, PART_EDITS);
+    let rw = (
+        resolution_week.start_unix(),
+        resolution_week.offset(1).start_unix(),
+    );
+    let extent_parts: Option<Vec<(i64, i64)>> = opts.resolution.is_none().then(|| {
+        parts
+            .iter()
+            .copied()
+            .filter(|&(a, b)| a < rw.1 && b > rw.0)
+            .collect()
     });
     std::thread::scope(|scope| {
-        // A second connection loads and places the weeks' edits, one week ahead of the
-        // counting below (a core each when there are two).
+        // A second connection loads and places the edits, one part ahead of the counting
+        // below (a core each when there are two).
         let (tx, rx) = std::sync::mpsc::sync_channel(1);
         let path = store.path().to_owned();
-        let spans = week_spans.clone();
-        scope.spawn(move || load_weeks(&path, extent_span, &spans, &tx));
-        count_loaded(
-            store,
-            &rx,
+        let load = parts.clone();
+        scope.spawn(move || load_parts(&path, extent_parts.as_deref(), rw, &load, &tx));
+        let window = Window {
             first_week,
-            last_week,
+            weeks: usize::try_from(last_week.ordinal() - first_week.ordinal() + 1).unwrap_or(0),
             from,
-            &week_spans,
-            land,
-            opts,
-            progress,
-        )
+            parts: &parts,
+            times: &times,
+            details_from: weeks.details_from.start_unix(),
+        };
+        count_loaded(store, &rx, &window, land, opts, progress)
     })
 }
 
+/// Most edits per part of a window counted at once (fewer when an hour holds more): memory
+/// follows a part's edits, whatever the size of the region.
+const PART_EDITS: u64 = 100_000;
+
+/// Splits `from..to` into consecutive parts of whole hours holding at most `most` edits each
+/// (by `hourly` counts; an hour holding more is a part of its own), never across the start of
+/// an ISO week.
+fn window_parts(from: i64, to: i64, hourly: &[u64], most: u64) -> Vec<(i64, i64)> {
+    let mut parts = Vec::new();
+    let (mut start, mut held) = (from, 0u64);
+    let mut t = from;
+    for &n in hourly {
+        if t >= to {
+            break;
+        }
+        let week_starts = (t - from) % 604_800 == 0 && t > start;
+        if t > start && (held + n > most || week_starts) {
+            parts.push((start, t));
+            (start, held) = (t, 0);
+        }
+        held += n;
+        t += 3600;
+    }
+    if start < to {
+        parts.push((start, to));
+    }
+    parts
+}
+
+/// The window [`count`] counts and how it is split.
+struct Window<'a> {
+    first_week: IsoWeek,
+    weeks: usize,
+    /// Start of the first week (unix seconds).
+    from: i64,
+    parts: &'a [(i64, i64)],
+    times: &'a crate::store::EditTimes,
+    /// See [`CountWeeks::details_from`] (unix seconds).
+    details_from: i64,
+}
+
 /// What the loading thread of [`count`] sends: the size of the area edited in the resolution
-/// week (km across), then each week's placed edits with their changesets' metadata.
+/// week (km across), then each part's placed edits with their changesets' metadata.
 enum Loaded {
     ExtentKm(f64),
-    Week(Vec<Edit>, HashMap<i64, ChangesetMeta>),
+    Part(Vec<Edit>, HashMap<i64, ChangesetMeta>),
 }
 
 /// The loading thread of [`count`]: opens its own connection and sends what it loads, or the
 /// first error; stops early when the receiver is gone.
-fn load_weeks(
+fn load_parts(
     path: &Path,
-    extent_span: Option<(i64, i64)>,
-    weeks: &[(i64, i64)],
+    extent_parts: Option<&[(i64, i64)]>,
+    resolution_week: (i64, i64),
+    parts: &[(i64, i64)],
     tx: &std::sync::mpsc::SyncSender<Result<Loaded, StoreError>>,
 ) {
     let run = || -> Result<(), StoreError> {
         let store = Store::open(path)?;
         let mut locator = Locator::new(&store)?;
-        if let Some((a, b)) = extent_span {
-            let (edits, _) = locator.load(a, b)?;
-            let ext = bbox_of(
-                edits
+        if let Some(extent_parts) = extent_parts {
+            let (a, b) = resolution_week;
+            let mut ext: Option<geo::Rect<f64>> = None;
+            for &(p, q) in extent_parts {
+                let (edits, _) = locator.load(p.max(a), q.min(b))?;
+                let points = edits
                     .iter()
-                    .filter_map(|e| e.pos.map(|p| (p.lon(), p.lat()))),
-            );
+                    .filter_map(|e| e.pos.map(|p| (p.lon(), p.lat())));
+                let corners = ext.map(|r| [(r.min().x, r.min().y), (r.max().x, r.max().y)]);
+                ext = bbox_of(points.chain(corners.into_iter().flatten()));
+            }
             let km = ext.map_or(0.0, |r| {
                 let a = crate::model::Coord::from_degrees(r.min().y, r.min().x);
                 let b = crate::model::Coord::from_degrees(r.max().y, r.max().x);
@@ -341,9 +405,9 @@ fn load_weeks(
                 return Ok(());
             }
         }
-        for &(a, b) in weeks {
+        for &(a, b) in parts {
             let (edits, metas) = locator.load(a, b)?;
-            if tx.send(Ok(Loaded::Week(edits, metas))).is_err() {
+            if tx.send(Ok(Loaded::Part(edits, metas))).is_err() {
                 return Ok(());
             }
         }
@@ -356,26 +420,15 @@ fn load_weeks(
 }
 
 /// The counting side of [`count`].
-#[allow(clippy::too_many_arguments, reason = "the parts of one window, named")]
 fn count_loaded(
     store: &Store,
     rx: &std::sync::mpsc::Receiver<Result<Loaded, StoreError>>,
-    first_week: IsoWeek,
-    last_week: IsoWeek,
-    from: i64,
-    week_spans: &[(i64, i64)],
+    window: &Window<'_>,
     land: &Land,
     opts: &ReportOptions,
     progress: &Progress,
 ) -> Result<Counted, PipelineError> {
-    let weeks = week_spans.len();
-    let times = store.edit_times(from, last_week.offset(1).start_unix())?;
-    if times.last_ts.is_none_or(|t| t < last_week.start_unix()) {
-        return Err(PipelineError::NoData {
-            path: store.path().to_owned(),
-            message: format!("no edits in the report week {last_week}"),
-        });
-    }
+    let (weeks, from, times) = (window.weeks, window.from, window.times);
     let first_edit = &times.mapper_first;
     let mut uids: Vec<i64> = first_edit.keys().copied().collect();
     uids.sort_unstable();
@@ -391,7 +444,7 @@ fn count_loaded(
         Some(r) => r,
         None => match next()? {
             Loaded::ExtentKm(km) => default_resolution(km),
-            Loaded::Week(..) => return Err(lost()),
+            Loaded::Part(..) => return Err(lost()),
         },
     };
     let threshold = opts.flag_threshold;
@@ -399,16 +452,17 @@ fn count_loaded(
     let mut changesets: HashMap<i64, ScoredChangeset> = HashMap::new();
     let mut waiting: Vec<Edit> = Vec::new();
     let mut waiting_metas: HashMap<i64, ChangesetMeta> = HashMap::new();
-    let bar = progress.steps(weeks as u64, "weeks counted");
-    for &(_, week_end) in week_spans {
-        let Loaded::Week(mut ready, mut metas) = next()? else {
+    let bar = progress.steps(times.hourly.iter().sum(), "edits counted");
+    for &(_, part_end) in window.parts {
+        let Loaded::Part(mut ready, mut metas) = next()? else {
             return Err(lost());
         };
+        bar.inc(ready.len() as u64);
         // The order of a batch's edits does not matter to the steps below.
         ready.append(&mut waiting);
         metas.extend(waiting_metas.drain());
-        // Changesets with edits after this week wait, with their metadata, for a later week.
-        let done = |cs: i64| times.changeset_last.get(&cs).is_none_or(|&t| t < week_end);
+        // Changesets with edits after this part wait, with their metadata, for a later part.
+        let done = |cs: i64| times.changeset_last.get(&cs).is_none_or(|&t| t < part_end);
         let later: Vec<Edit> = ready.extract_if(.., |e| !done(e.changeset)).collect();
         for e in &later {
             if let Some(m) = metas.remove(&e.changeset) {
@@ -419,18 +473,27 @@ fn count_loaded(
         let facts = edit_facts(&ready, &hist, first_edit, land, &existing, &opts.features);
         for f in changeset_features(&ready, &facts, &metas, &hist, first_edit) {
             let s = opts.scoring.score(&f);
+            let details = times
+                .changeset_last
+                .get(&f.id)
+                .is_some_and(|&t| t >= window.details_from);
+            let text = |t: String| if details { t } else { String::new() };
             changesets.insert(
                 f.id,
                 ScoredChangeset {
                     id: f.id,
                     uid: f.uid,
-                    user: f.user,
+                    user: text(f.user),
                     created_at: f.created_at,
                     account_age_days: f.account_age_days,
-                    comment: f.comment,
-                    editor: f.editor,
+                    comment: text(f.comment),
+                    editor: text(f.editor),
                     score: s.score,
-                    reasons: s.reasons.into_iter().map(|r| r.1).collect(),
+                    reasons: if details {
+                        s.reasons.into_iter().map(|r| r.1).collect()
+                    } else {
+                        Vec::new()
+                    },
                 },
             );
         }
@@ -443,13 +506,12 @@ fn count_loaded(
             .collect();
         let flagged = |cs: i64| changesets.get(&cs).is_some_and(|s| s.score >= threshold);
         counter.add(&ready, &facts, &week_of, &flagged);
-        bar.inc(1);
     }
     bar.finish();
     let (cell_weeks, changeset_cells) =
         counter.finish(&|cs| changesets.get(&cs).map_or(0.0, |s| s.score));
     Ok(Counted {
-        first_week,
+        first_week: window.first_week,
         cell_weeks,
         changeset_cells,
         changesets,
@@ -474,7 +536,13 @@ pub fn analyse(
     ));
     let land = opts.land.load()?;
     let regions = load_regions(opts)?;
-    let counted = count(store, first_week, week, week, &land, opts, progress)?;
+    let weeks = CountWeeks {
+        first: first_week,
+        last: week,
+        resolution: week,
+        details_from: week,
+    };
+    let counted = count(store, weeks, &land, opts, progress)?;
     let mut analysis = analyse_counted(counted, &regions, land, store.skipped()?, opts, progress);
     analysis.roads = main_roads(store, &analysis, opts, progress)?;
     Ok(analysis)
@@ -922,4 +990,53 @@ pub fn write(
     };
     crate::report::write_report(out, &analysis.summary, &reports, &ctx)?;
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn window_parts_cover_the_window_in_bounded_parts_within_weeks() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        let from = 1_797_811_200; // a Monday
+        for weeks in [1i64, 2, 14] {
+            let to = from + weeks * 604_800;
+            let hours = usize::try_from((to - from) / 3600 + 1).unwrap();
+            let hourly: Vec<u64> = (0..hours)
+                .map(|h| {
+                    if h % 97 == 5 {
+                        500
+                    } else {
+                        rng.gen_range(0..40)
+                    }
+                })
+                .collect();
+            let parts = window_parts(from, to, &hourly, 300);
+            assert_eq!(parts.first().map(|p| p.0), Some(from));
+            assert_eq!(parts.last().map(|p| p.1), Some(to));
+            for w in parts.windows(2) {
+                assert_eq!(w[0].1, w[1].0, "parts are consecutive");
+            }
+            for &(a, b) in &parts {
+                assert!(a < b);
+                assert_eq!((a - from) % 3600, 0);
+                assert_eq!(
+                    (a - from) / 604_800,
+                    (b - 1 - from) / 604_800,
+                    "{a}..{b} crosses a week"
+                );
+                let first = usize::try_from((a - from) / 3600).unwrap();
+                let last = usize::try_from((b - from) / 3600).unwrap();
+                let held: u64 = hourly[first..last].iter().sum();
+                assert!(held <= 300 || last - first == 1, "{a}..{b} holds {held}");
+            }
+            assert!(parts.len() as i64 >= weeks);
+        }
+        assert_eq!(
+            window_parts(from, from + 60, &[0], 10),
+            vec![(from, from + 60)]
+        );
+    }
 }

@@ -546,15 +546,13 @@ pub fn export(
         Some(p) => crate::regions::load(p)?,
         None => crate::regions::everything(),
     };
-    let counted = crate::pipeline::count(
-        store,
-        first_week,
-        last_week,
-        default_week,
-        &land,
-        opts,
-        progress,
-    )?;
+    let weeks = crate::pipeline::CountWeeks {
+        first: first_week,
+        last: last_week,
+        resolution: default_week,
+        details_from: first_week,
+    };
+    let counted = crate::pipeline::count(store, weeks, &land, opts, progress)?;
     prepare_folder(out)?;
     let summary = write_tables(out, &counted, &regions, opts, progress)?;
     let manifest = Manifest {

@@ -119,6 +119,8 @@ pub struct EditTimes {
     pub mapper_first: HashMap<i64, i64>,
     /// The time of the window's last edit, if it has any.
     pub last_ts: Option<i64>,
+    /// Edits per hour of the window (repeated element versions counted each time).
+    pub hourly: Vec<u64>,
 }
 
 /// An open state database.
@@ -513,16 +515,26 @@ impl Store {
 
     /// Who edited when in `from <= ts < to`, without reading the edits' text: each changeset's
     /// last edit time and each mapper's first edit time in the window (a repeated element
-    /// version changes neither).
+    /// version changes neither), and how many edits fall in each hour.
     ///
     /// # Errors
     /// On SQLite failure or a damaged block.
     pub fn edit_times(&self, from: i64, to: i64) -> Result<EditTimes, StoreError> {
-        let mut out = EditTimes::default();
+        let hours = usize::try_from((to - from).max(0).div_euclid(3600) + 1).unwrap_or(0);
+        let mut out = EditTimes {
+            hourly: vec![0; hours],
+            ..EditTimes::default()
+        };
         self.for_each_edit_block(from, to, |data| {
             edit_log::scan(data, |changeset, uid, ts| {
                 if ts < from || ts >= to {
                     return;
+                }
+                if let Some(h) = usize::try_from((ts - from) / 3600)
+                    .ok()
+                    .and_then(|h| out.hourly.get_mut(h))
+                {
+                    *h += 1;
                 }
                 let last = out.changeset_last.entry(changeset).or_insert(ts);
                 *last = (*last).max(ts);
