@@ -263,7 +263,8 @@ impl<'a> Locator<'a> {
     ) -> Result<(Vec<Edit>, HashMap<i64, ChangesetMeta>), StoreError> {
         let store = self.index.store;
         let index = &mut self.index;
-        // Node positions are cached for one window at a time, so memory follows the window.
+        // Node positions are cached for one window at a time, so memory follows the window
+        // (the index's block cache serves the next).
         index.cache.clear();
         let coord = |p: Option<(i32, i32)>| p.and_then(|(a, b)| Coord::from_e7(a.into(), b.into()));
         let rows = store.edits(from, to)?.into_iter().map(|e| {

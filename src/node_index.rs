@@ -164,8 +164,9 @@ pub struct NodeIndex {
     cache: RefCell<BlockCache>,
 }
 
-/// Blocks held by the cache: at most this many (4 KiB each, 16 MiB in all).
-const CACHE_SLOTS: usize = 4096;
+/// Blocks held by the cache: at most this many (4 KiB each, 64 MiB in all: an index of 4
+/// million nodes fits whole).
+const CACHE_SLOTS: usize = 16_384;
 
 /// A direct-mapped cache of blocks of the file: block `b` can only sit in slot
 /// `b % CACHE_SLOTS`. Slot memory is allocated zeroed and untouched until used.
