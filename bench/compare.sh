@@ -3,11 +3,12 @@
 # (`hexvigil demo --intensity`), then for each size
 #   (a) the floor: `gzip -dc` over all diffs,
 #   (b) bench/count_cells.py (pyosmium + h3: snapshot into a location index, cells per diff),
-#   (c) hexvigil ingest (snapshot, changesets, all diffs) and ingest + report,
+#   (c) hexvigil ingest (snapshot, changesets, all diffs), the report after it, and both,
 # each pinned to one core (taskset -c 0), hexvigil also on all cores; wall time, element
 # changes per second, CPU time (user + system: steadier than wall time on a busy machine), peak
 # resident memory (GNU time), ratios of wall times to (a) and (b), load average.
 # Usage: bench/compare.sh [SCALE...]   (default: 1 4 16; scale 1 = intensity 6, ~1 M changes)
+# RUNS=N runs each timing N times and keeps the fastest (a busy machine slows single runs).
 # Needs: pip install osmium h3. HEXVIGIL=path compares another build of the binary.
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -19,18 +20,30 @@ trap 'rm -rf "$work"' EXIT
 echo "machine: $(nproc) cores, $(free -g | awk '/Mem:/ {print $2}') GiB, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ //'), $(uname -sr)"
 echo "binary: $bin ($(git rev-parse --short HEAD))"
 
-timed() { # label, command...: sets secs, mib; prints a row
+runs=${RUNS:-1}
+timed() { # label, command...: runs it $RUNS times; sets secs, mib, cpu of the fastest; prints a row
     local label=$1; shift
-    sync
     local load; load=$(cut -d' ' -f1 /proc/loadavg)
-    /usr/bin/time -v -o "$work/t" "$@" > "$work/out" 2> "$work/err" || { cat "$work/err"; exit 1; }
-    secs=$(awk -F': ' '/Elapsed \(wall clock\)/ {n=split($2,p,":"); s=0; for(i=1;i<=n;i++) s=s*60+p[i]; print s}' "$work/t")
-    mib=$(( $(awk -F': ' '/Maximum resident/ {print $2}' "$work/t") / 1024 ))
-    cpu=$(awk -F': ' '/User time|System time/ {s += $2} END {printf "%.1f", s}' "$work/t")
+    local i s
+    secs=
+    for ((i = 0; i < runs; i++)); do
+        sync
+        /usr/bin/time -v -o "$work/t" "$@" > "$work/out" 2> "$work/err" || { cat "$work/err"; exit 1; }
+        s=$(awk -F': ' '/Elapsed \(wall clock\)/ {n=split($2,p,":"); s=0; for(i=1;i<=n;i++) s=s*60+p[i]; print s}' "$work/t")
+        if [ -z "$secs" ] || awk -v a="$s" -v b="$secs" 'BEGIN {exit !(a < b)}'; then
+            secs=$s
+            mib=$(( $(awk -F': ' '/Maximum resident/ {print $2}' "$work/t") / 1024 ))
+            cpu=$(awk -F': ' '/User time|System time/ {s += $2} END {printf "%.1f", s}' "$work/t")
+        fi
+    done
     printf '| %s | %s | %.2f s | %s s | %s | %d MiB | %s | %s | %s |\n' "$scale" "$label" "$secs" "$cpu" \
         "$(awk -v n="$elements" -v s="$secs" 'BEGIN {printf "%.0f", n / s}')" "$mib" \
         "$(awk -v s="$secs" -v f="${floor:-0}" 'BEGIN {if (f > 0) printf "%.1f", s / f; else print "1"}')" \
         "$(awk -v s="$secs" -v p="${py:-0}" 'BEGIN {if (p > 0) printf "%.2f", s / p; else print "-"}')" "$load"
+}
+
+sum_row() { # label, seconds, seconds: a row for two runs one after the other
+    echo "| $scale | (c) hexvigil $1 | $(awk -v a="$2" -v b="$3" 'BEGIN {printf "%.2f s", a + b}') | | | | $(awk -v a="$2" -v b="$3" -v f="$floor" 'BEGIN {printf "%.1f", (a + b) / f}') | $(awk -v a="$2" -v b="$3" -v p="$py" 'BEGIN {printf "%.2f", (a + b) / p}') | |"
 }
 
 echo
@@ -47,11 +60,17 @@ for scale in "${scales[@]}"; do
     timed "(b) count_cells.py (pyosmium + h3), 1 core" taskset -c 0 python3 bench/count_cells.py "$d/input/snapshot.osm" "${diffs[@]}"; py=$secs
     echo "<!-- (b) said: $(cat "$work/out") -->"
     inputs=("$d/input/snapshot.osm" "$d/input/changesets.osm" "${diffs[@]}")
-    report=(report --db "$d/one.db" --out "$d/rep1" --regions "$d/input/regions.geojson" --land "$d/input/land.geojson")
-    timed "(c) hexvigil ingest, 1 core" taskset -c 0 "$bin" --quiet ingest --db "$d/one.db" "${inputs[@]}"
+    areas=(--regions "$d/input/regions.geojson" --land "$d/input/land.geojson")
+    # Each ingest run starts from no database (a second run of the same files would do nothing).
+    timed "(c) hexvigil ingest, 1 core" sh -c 'rm -f "$1" "$1".nodes.*; shift; exec taskset -c 0 "$@"' \
+        - "$d/one.db" "$bin" --quiet ingest --db "$d/one.db" "${inputs[@]}"
     ingest1=$secs
-    timed "(c) hexvigil report (after the ingest), 1 core" taskset -c 0 "$bin" --quiet "${report[@]}"
-    echo "| $scale | (c) hexvigil ingest + report, 1 core | $(awk -v a="$ingest1" -v b="$secs" 'BEGIN {printf "%.2f s", a + b}') | | | | $(awk -v a="$ingest1" -v b="$secs" -v f="$floor" 'BEGIN {printf "%.1f", (a + b) / f}') | $(awk -v a="$ingest1" -v b="$secs" -v p="$py" 'BEGIN {printf "%.2f", (a + b) / p}') | |"
-    timed "(c) hexvigil ingest, $(nproc) cores" "$bin" --quiet ingest --db "$d/all.db" "${inputs[@]}"
+    timed "(c) hexvigil report (after the ingest), 1 core" taskset -c 0 "$bin" --quiet report --db "$d/one.db" --out "$d/rep1" "${areas[@]}"
+    sum_row "ingest + report, 1 core" "$ingest1" "$secs"
+    timed "(c) hexvigil ingest, $(nproc) cores" sh -c 'rm -f "$1" "$1".nodes.*; shift; exec "$@"' \
+        - "$d/all.db" "$bin" --quiet ingest --db "$d/all.db" "${inputs[@]}"
+    ingest2=$secs
+    timed "(c) hexvigil report (after the ingest), $(nproc) cores" "$bin" --quiet report --db "$d/all.db" --out "$d/rep2" "${areas[@]}"
+    sum_row "ingest + report, $(nproc) cores" "$ingest2" "$secs"
     rm -rf "$d"
 done
