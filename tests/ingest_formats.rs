@@ -277,7 +277,7 @@ fn replication_folder_reads_in_sequence_order_and_reports_its_gap() {
     let dir = tempfile::tempdir().unwrap();
     let folder = fixture("ingest/replication");
     let db = dir.path().join("r.db");
-    let s = ingest_into(&db, &[folder.clone()]);
+    let s = ingest_into(&db, std::slice::from_ref(&folder));
     assert_eq!(s.files, 3);
     assert_eq!(s.replication.len(), 1);
     let r = &s.replication[0];
@@ -298,7 +298,7 @@ fn replication_folder_reads_in_sequence_order_and_reports_its_gap() {
     let db2 = dir.path().join("r2.db");
     let s = ingest_opts(
         &db2,
-        &[folder.clone()],
+        std::slice::from_ref(&folder),
         IngestOptions {
             sequences: Some(SequenceRange {
                 first: 4101,
@@ -348,7 +348,9 @@ fn full_history_diff_keeps_every_version_in_order() {
     ingest_into(&db, &snapshot_then_diffs(fixture("ingest/small.osm")));
     let store = Store::open(&db).unwrap();
     let edits = store.edits(i64::MIN, i64::MAX).unwrap();
-    let rows: Vec<(i64, i64, Option<i64>, Option<i32>, Option<i32>)> = edits
+    // Version, op code, replaced version, replaced latitude, latitude.
+    type Row = (i64, i64, Option<i64>, Option<i32>, Option<i32>);
+    let rows: Vec<Row> = edits
         .iter()
         .filter(|e| e.etype == ElementType::Node && e.eid == 20)
         .map(|e| {
