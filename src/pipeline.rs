@@ -452,7 +452,7 @@ fn count_loaded(
     let mut changesets: HashMap<i64, ScoredChangeset> = HashMap::new();
     let mut waiting: Vec<Edit> = Vec::new();
     let mut waiting_metas: HashMap<i64, ChangesetMeta> = HashMap::new();
-    let bar = progress.steps(times.hourly.iter().sum(), "edits counted");
+    let bar = progress.steps(times.hourly.iter().sum(), "count");
     for &(_, part_end) in window.parts {
         let Loaded::Part(mut ready, mut metas) = next()? else {
             return Err(lost());
