@@ -211,15 +211,9 @@ fn any_read_size_gives_the_same_result() {
         b"<tag k=\"a\" v=\"b\"/>",
         b"\xff",
     ];
-    // SplitMix64 steps (Steele, Lea, Flood 2014), for seeded edits.
-    let mut state = 5u64;
-    let mut next = move || {
-        state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = state;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        usize::try_from((z ^ (z >> 31)) % (1 << 32)).unwrap()
-    };
+    // Seeded edits.
+    let mut rng = <rand_chacha::ChaCha8Rng as rand::SeedableRng>::seed_from_u64(5);
+    let mut next = move || usize::try_from(rand::RngCore::next_u32(&mut rng)).unwrap();
     let mut cases = 0;
     for file in &files {
         // The large fixtures (thousands of tags, deep nesting) once each, in larger reads.
