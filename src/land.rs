@@ -302,7 +302,7 @@ pub struct LandLookup<'a> {
     land: &'a Land,
     /// Per square (row and column of 0.01° from 90° S, 180° W): `Some(is land)` when no edge
     /// comes near it, `None` when one does.
-    squares: std::collections::HashMap<(i64, i64), Option<bool>>,
+    squares: foldhash::HashMap<(i64, i64), Option<bool>>,
 }
 
 impl<'a> LandLookup<'a> {
@@ -314,7 +314,7 @@ impl<'a> LandLookup<'a> {
     pub fn new(land: &'a Land) -> Self {
         Self {
             land,
-            squares: std::collections::HashMap::new(),
+            squares: foldhash::HashMap::default(),
         }
     }
 

@@ -310,9 +310,8 @@ pub fn count(
         // A second connection loads and places the edits, one part ahead of the counting
         // below (a core each when there are two).
         let (tx, rx) = std::sync::mpsc::sync_channel(1);
-        let path = store.path().to_owned();
-        let load = parts.clone();
-        scope.spawn(move || load_parts(&path, extent_parts.as_deref(), rw, &load, &tx));
+        let (path, load) = (store.path(), parts.as_slice());
+        scope.spawn(move || load_parts(path, extent_parts.as_deref(), rw, load, &tx));
         let window = Window {
             first_week,
             weeks: usize::try_from(last_week.ordinal() - first_week.ordinal() + 1).unwrap_or(0),
