@@ -12,6 +12,7 @@ pub mod cells;
 pub mod cli;
 pub mod demo;
 pub mod detect;
+pub mod element_state;
 pub mod evaluate;
 pub mod export;
 pub mod features;

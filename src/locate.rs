@@ -9,9 +9,9 @@
 
 use std::collections::HashMap;
 
-use rusqlite::{params, OptionalExtension};
 
 use crate::model::{Coord, ElementType, Op};
+use crate::element_state::ElementState;
 use crate::node_index::NodeIndex;
 use crate::store::{member_decode, unpack_refs, Store, StoreError};
 use crate::summary::Placement;
@@ -64,14 +64,14 @@ pub struct ChangesetMeta {
 /// Most members followed when placing a relation; enough for a centroid, bounded for huge ones.
 const MAX_MEMBERS_FOR_CENTROID: usize = 500;
 
-/// Positions of nodes (from the node-location index) and refs of ways (from `elements`).
-struct Positions<'a> {
-    store: &'a Store,
+/// Positions of nodes (from the node-location index) and refs of ways (from the element state).
+struct Positions {
+    elements: ElementState,
     nodes: NodeIndex,
     cache: foldhash::HashMap<i64, Option<Coord>>,
 }
 
-impl Positions<'_> {
+impl Positions {
     fn node(&mut self, id: i64) -> Result<Option<Coord>, StoreError> {
         if let Some(c) = self.cache.get(&id) {
             return Ok(*c);
@@ -82,16 +82,7 @@ impl Positions<'_> {
     }
 
     fn stored_refs(&self, t: ElementType, id: i64) -> Result<Option<Vec<u8>>, StoreError> {
-        let mut st = self
-            .store
-            .conn()
-            .prepare_cached("SELECT refs FROM elements WHERE etype = ?1 AND eid = ?2")
-            .map_err(|e| self.store.map_err(e))?;
-        Ok(st
-            .query_row(params![t.code(), id], |r| r.get::<_, Option<Vec<u8>>>(0))
-            .optional()
-            .map_err(|e| self.store.map_err(e))?
-            .flatten())
+        Ok(self.elements.get(t, id)?.and_then(|r| r.refs))
     }
 
     fn way_centroid(&mut self, refs: &[u8]) -> Result<Option<Coord>, StoreError> {
@@ -233,7 +224,8 @@ pub fn load_edits(
 /// Loads and places the edits of one window after another with one open node-location index,
 /// whose block cache serves them all.
 pub struct Locator<'a> {
-    index: Positions<'a>,
+    store: &'a Store,
+    index: Positions,
 }
 
 impl<'a> Locator<'a> {
@@ -243,8 +235,9 @@ impl<'a> Locator<'a> {
     /// On database failure or an unreadable index.
     pub fn new(store: &'a Store) -> Result<Self, StoreError> {
         Ok(Self {
+            store,
             index: Positions {
-                store,
+                elements: store.element_state()?,
                 nodes: store.node_index()?,
                 cache: foldhash::HashMap::default(),
             },
@@ -261,7 +254,7 @@ impl<'a> Locator<'a> {
         from: i64,
         to: i64,
     ) -> Result<(Vec<Edit>, HashMap<i64, ChangesetMeta>), StoreError> {
-        let store = self.index.store;
+        let store = self.store;
         let index = &mut self.index;
         // Node positions are cached for one window at a time, so memory follows the window
         // (the index's block cache serves the next).

@@ -548,14 +548,13 @@ fn merge_into(mut sources: Vec<Source<'_>>, out: &mut IndexWriter) -> Result<(),
     }
 }
 
-fn sync_dir(path: &Path) -> Result<(), NodeIndexError> {
+/// Syncs the folder holding `path`, so that a rename into it survives a power cut.
+pub(crate) fn sync_dir(path: &Path) -> std::io::Result<()> {
     let dir = path
         .parent()
         .filter(|p| !p.as_os_str().is_empty())
         .unwrap_or(Path::new("."));
-    File::open(dir)
-        .and_then(|d| d.sync_all())
-        .map_err(io_err(dir))
+    File::open(dir).and_then(|d| d.sync_all())
 }
 
 /// Removes every file of the index at `prefix` except generation `keep` (leftovers of
@@ -813,7 +812,7 @@ impl NodeIndexTx {
         merge_into(sources, &mut w)?;
         w.finish()?;
         std::fs::rename(&temp, &final_path).map_err(io_err(&final_path))?;
-        sync_dir(&final_path)?;
+        sync_dir(&final_path).map_err(io_err(&final_path))?;
         Ok(Some(PreparedIndex {
             prefix: self.prefix.clone(),
             previous: self.committed,

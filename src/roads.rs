@@ -1,10 +1,11 @@
 //! Main roads from the snapshot as faint context on heat images: visible ways tagged
 //! `highway=motorway`, `trunk`, `primary`, `secondary` or `tertiary` (and their `_link` roads),
-//! read from the `elements` table and placed with the node-location index.
+//! read from the element state and placed with the node-location index.
 //!
-//! Kept cheap: one scan of the ways whose tags mention `highway`, one primary-key lookup per
-//! node, and a cap on the nodes read so a country-sized database cannot stall a report.
+//! Kept cheap: one sequential scan of the stored ways, one index lookup per node of a main
+//! road, and a cap on the nodes read so a country-sized database cannot stall a report.
 
+use crate::model::ElementType;
 use crate::store::{packed_tag, unpack_refs, Store, StoreError};
 
 /// The `highway` values drawn.
@@ -40,29 +41,22 @@ pub struct MainRoads {
 /// # Errors
 /// On SQLite failure.
 pub fn main_roads(store: &Store, extent: geo::Rect<f64>) -> Result<MainRoads, StoreError> {
-    let conn = store.conn();
-    let mut ways = conn
-        .prepare(
-            "SELECT tags, refs FROM elements \
-             WHERE etype = 1 AND visible = 1 AND instr(tags, ?1) > 0 ORDER BY eid",
-        )
-        .map_err(|e| store.map_err(e))?;
+    let ways = store.element_state()?;
     let nodes = store.node_index()?;
     let (min, max) = (extent.min(), extent.max());
     let inside =
         |(lon, lat): (f64, f64)| (min.x..=max.x).contains(&lon) && (min.y..=max.y).contains(&lat);
-    let mut rows = ways
-        .query(["highway\u{1F}"])
-        .map_err(|e| store.map_err(e))?;
     let mut out = MainRoads::default();
     let mut nodes_read = 0usize;
-    while let Some(row) = rows.next().map_err(|e| store.map_err(e))? {
-        let tags: String = row.get(0).map_err(|e| store.map_err(e))?;
-        if !packed_tag(&tags, "highway").is_some_and(|h| MAIN_ROAD_CLASSES.contains(&h)) {
+    for row in ways.rows_of(ElementType::Way) {
+        let (_, way) = row?;
+        if !way.visible
+            || !packed_tag(&way.tags, "highway").is_some_and(|h| MAIN_ROAD_CLASSES.contains(&h))
+        {
             continue;
         }
-        let refs: Option<Vec<u8>> = row.get(1).map_err(|e| store.map_err(e))?;
-        let refs: Vec<i64> = refs
+        let refs: Vec<i64> = way
+            .refs
             .as_deref()
             .map(|r| unpack_refs(r).collect())
             .unwrap_or_default();

@@ -38,12 +38,13 @@ use sha2::{Digest, Sha256};
 
 use foldhash::HashMap;
 
+use crate::element_state::{ElementStateTx, RowRef};
 use crate::model::{ElementType, Op};
 use crate::node_index::{NodeEntry, NodeIndexTx};
 use crate::progress::Progress;
 use crate::store::edit_log::{BlockBuilder, EditRef, PrevRef};
 use crate::store::{
-    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs, ElementRows,
+    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs,
     IngestTx, Prev, Store, StoreError, Work,
 };
 use replication::{Replication, SequenceRange};
@@ -532,11 +533,16 @@ pub fn ingest_extended(
         ..IngestSummary::default()
     };
     let prefix = store.node_index_prefix();
+    let state_prefix = store.element_state_prefix();
     let tx = store.begin()?;
     let committed = tx.node_generation()?;
     // The write lock is held: no other ingest writes index files now.
     crate::node_index::remove_other_generations(&prefix, committed).map_err(StoreError::from)?;
     let mut nodes = NodeIndexTx::begin(&prefix, committed).map_err(StoreError::from)?;
+    let state_committed = tx.elements_generation()?;
+    crate::node_index::remove_other_generations(&state_prefix, state_committed)
+        .map_err(StoreError::from)?;
+    let mut state = ElementStateTx::begin(&state_prefix, state_committed).map_err(StoreError::from)?;
     let mut todo = Vec::new();
     let mut seen = std::collections::HashSet::new();
     for input in hashed {
@@ -561,7 +567,7 @@ pub fn ingest_extended(
         let input = &todo[i];
         let mut w = Writer {
             tx: &tx,
-            rows: tx.element_rows()?,
+            state: &mut state,
             nodes: &mut nodes,
             elements: 0,
             changesets: 0,
@@ -635,11 +641,18 @@ pub fn ingest_extended(
     if let Some(p) = &prepared {
         tx.set_node_generation(p.generation())?;
     }
+    let prepared_state = state.prepare().map_err(StoreError::from)?;
+    if let Some(p) = &prepared_state {
+        tx.set_elements_generation(p.generation())?;
+    }
     for (k, v) in extras.meta {
         tx.set_meta(k, v)?;
     }
     tx.commit()?;
     if let Some(p) = prepared {
+        p.committed();
+    }
+    if let Some(p) = prepared_state {
         p.committed();
     }
     bar.finish();
@@ -873,7 +886,8 @@ fn parse_xml(
 /// The one writer: applies items to the database transaction and the node-location index.
 struct Writer<'a, 'b> {
     tx: &'a IngestTx<'b>,
-    rows: ElementRows<'a>,
+    /// The element state: ways, relations and tagged nodes.
+    state: &'a mut ElementStateTx,
     nodes: &'a mut NodeIndexTx,
     elements: u64,
     changesets: u64,
@@ -1025,10 +1039,10 @@ impl Writer<'_, '_> {
         Ok(match t {
             ElementType::Node => match el.coord() {
                 Some(p) => c.contains(p),
-                None => self.nodes.get(el.id)?.is_some() || self.tx.element(t, el.id)?.is_some(),
+                None => self.nodes.get(el.id)?.is_some() || self.state.contains(t, el.id)?,
             },
             ElementType::Way => {
-                if self.tx.element(t, el.id)?.is_some() {
+                if self.state.contains(t, el.id)? {
                     return Ok(true);
                 }
                 for r in refs.into_iter().flatten() {
@@ -1039,13 +1053,13 @@ impl Writer<'_, '_> {
                 false
             }
             ElementType::Relation => {
-                if self.tx.element(t, el.id)?.is_some() {
+                if self.state.contains(t, el.id)? {
                     return Ok(true);
                 }
                 for (mt, id) in refs.into_iter().flatten().filter_map(member_decode) {
                     let inside = match mt {
                         ElementType::Node => node_inside(id)?,
-                        ElementType::Way => self.tx.element(mt, id)?.is_some(),
+                        ElementType::Way => self.state.contains(mt, id)?,
                         ElementType::Relation => false,
                     };
                     if inside {
@@ -1126,7 +1140,14 @@ impl Writer<'_, '_> {
         let stored = if fresh || indexed.is_some_and(|i| !i.has_row) {
             None
         } else {
-            self.rows.get(t, el.id)?
+            self.state.get(t, el.id)?.map(|r| Prev {
+                version: r.version,
+                ts: Some(r.ts),
+                tags: r.tags,
+                lat_e7: r.pos.map(|p| p.0),
+                lon_e7: r.pos.map(|p| p.1),
+                refs: r.refs,
+            })
         };
         let from_index = |i: NodeEntry| Prev {
             version: i64::from(i.version),
@@ -1221,31 +1242,26 @@ impl Writer<'_, '_> {
                 return Ok(());
             }
         }
-        if deleted {
-            self.rows.put(
-                true,
-                t,
-                el.id,
-                el.version,
-                el.timestamp,
-                false,
-                keep_pos,
-                keep.map_or("", |p| p.tags.as_str()),
-                keep.and_then(|p| p.refs.as_deref()),
-            )
+        let row = if deleted {
+            RowRef {
+                version: el.version,
+                ts: el.timestamp,
+                visible: false,
+                pos: keep_pos,
+                tags: keep.map_or("", |p| p.tags.as_str()),
+                refs: keep.and_then(|p| p.refs.as_deref()),
+            }
         } else {
-            self.rows.put(
-                !fresh,
-                t,
-                el.id,
-                el.version,
-                el.timestamp,
-                true,
+            RowRef {
+                version: el.version,
+                ts: el.timestamp,
+                visible: true,
                 pos,
                 tags,
-                refs.as_deref(),
-            )
-        }
+                refs: refs.as_deref(),
+            }
+        };
+        Ok(self.state.put(!fresh, t, el.id, &row)?)
     }
 }
 

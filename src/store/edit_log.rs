@@ -125,7 +125,7 @@ pub struct BlockBuilder {
     named: std::collections::HashSet<i64>,
 }
 
-fn put_varint(out: &mut Vec<u8>, mut v: u64) {
+pub(crate) fn put_varint(out: &mut Vec<u8>, mut v: u64) {
     while v >= 0x80 {
         out.push((v as u8) | 0x80);
         v >>= 7;
@@ -133,19 +133,19 @@ fn put_varint(out: &mut Vec<u8>, mut v: u64) {
     out.push(v as u8);
 }
 
-const fn zigzag(v: i64) -> u64 {
+pub(crate) const fn zigzag(v: i64) -> u64 {
     ((v << 1) ^ (v >> 63)) as u64
 }
 
-const fn unzigzag(v: u64) -> i64 {
+pub(crate) const fn unzigzag(v: u64) -> i64 {
     ((v >> 1) as i64) ^ -((v & 1) as i64)
 }
 
-fn put_signed(out: &mut Vec<u8>, v: i64) {
+pub(crate) fn put_signed(out: &mut Vec<u8>, v: i64) {
     put_varint(out, zigzag(v));
 }
 
-fn put_bytes(out: &mut Vec<u8>, b: &[u8]) {
+pub(crate) fn put_bytes(out: &mut Vec<u8>, b: &[u8]) {
     put_varint(out, b.len() as u64);
     out.extend_from_slice(b);
 }

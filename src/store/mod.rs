@@ -5,17 +5,19 @@
 //! (metadata), `edit_blocks` (the edit log, [`edit_log`]: every element version seen in a diff,
 //! with the state it replaced, appended in blocks), `changeset_work` (per changeset: its mapper,
 //! first edit time, edits and deletions in the diffs, for the mappers' histories), `grid_first`
-//! (per square of about 1 km, the time the first node known there appeared), `elements` (the
-//! latest known version of every way, relation and tagged node: tags, node refs, members),
-//! `skipped` (odd elements skipped while reading, by reason).
+//! (per square of about 1 km, the time the first node known there appeared), `skipped` (odd
+//! elements skipped while reading, by reason).
 //!
-//! Node positions live in the node-location index ([`crate::node_index`]), a compact file next
-//! to the database whose generation is recorded in `meta` (`nodes_generation`) by the same
-//! transaction as the ingest that wrote it; `elements` keeps nodes only when they carry tags.
+//! Two compact files sit next to the database, each with its generation recorded in `meta` by
+//! the same transaction as the ingest that wrote it: the node-location index
+//! ([`crate::node_index`], `nodes_generation`: every node's position and version) and the
+//! element state ([`crate::element_state`], `elements_generation`: the latest known version of
+//! every way, relation and tagged node, with tags, node refs and members).
 //!
 //! Writes happen only inside an [`IngestTx`], one SQLite transaction per ingest command: a failed
-//! ingest rolls back and leaves the database as it was. A database of schema 1 (one `edits` row
-//! per edit) is converted when opened, in one transaction.
+//! ingest rolls back and leaves the database as it was. Older databases are converted when
+//! opened, each step in one transaction: schema 1 (one `edits` row per edit) to 2 (the edit
+//! log), and schema 2 (the element state in an `elements` table) to 3.
 
 pub mod edit_log;
 
@@ -25,10 +27,11 @@ use std::path::{Path, PathBuf};
 use rusqlite::{params, Connection, OptionalExtension, Transaction};
 
 use crate::model::{ElementType, Op};
+use crate::element_state::{self, ElementState, ElementStateError, ElementStateTx, RowRef};
 use crate::node_index::{self, NodeEntry, NodeIndex, NodeIndexError, NodeIndexTx};
 
 /// Current database schema version.
-pub const SCHEMA_VERSION: i64 = 2;
+pub const SCHEMA_VERSION: i64 = 3;
 
 /// Errors of the state database.
 #[derive(Debug, thiserror::Error)]
@@ -49,10 +52,14 @@ pub enum StoreError {
     },
     #[error(transparent)]
     NodeIndex(#[from] NodeIndexError),
+    #[error(transparent)]
+    ElementState(#[from] ElementStateError),
 }
 
 /// The `meta` key holding the committed node-index generation.
 const NODES_GENERATION: &str = "nodes_generation";
+/// The `meta` key holding the committed element-state generation.
+const ELEMENTS_GENERATION: &str = "elements_generation";
 
 /// Tags packed into one string: `key \x1F value \x1E ...`. Both separators are control
 /// characters that XML 1.0 does not allow in attribute values, so no tag can contain them.
@@ -149,10 +156,6 @@ CREATE TABLE IF NOT EXISTS changeset_work(
     edits INTEGER NOT NULL, deletes INTEGER NOT NULL);
 CREATE INDEX IF NOT EXISTS changeset_work_uid ON changeset_work(uid, first_ts);
 CREATE TABLE IF NOT EXISTS grid_first(square INTEGER PRIMARY KEY, first_ts INTEGER NOT NULL);
-CREATE TABLE IF NOT EXISTS elements(
-    etype INTEGER NOT NULL, eid INTEGER NOT NULL, version INTEGER NOT NULL, ts INTEGER NOT NULL,
-    visible INTEGER NOT NULL, lat_e7 INTEGER, lon_e7 INTEGER, tags TEXT NOT NULL, refs BLOB,
-    PRIMARY KEY(etype, eid)) WITHOUT ROWID;
 CREATE TABLE IF NOT EXISTS skipped(reason TEXT PRIMARY KEY, count INTEGER NOT NULL);
 ";
 
@@ -210,7 +213,7 @@ impl Store {
             })
             .optional()
             .map_err(|e| store.map_err(e))?;
-        let mut migrate = false;
+        let mut from = SCHEMA_VERSION;
         match found.and_then(|v| v.parse::<i64>().ok()) {
             None => {
                 store
@@ -221,8 +224,7 @@ impl Store {
                     )
                     .map_err(|e| store.map_err(e))?;
             }
-            Some(SCHEMA_VERSION) => {}
-            Some(1) => migrate = true,
+            Some(v @ (1..=SCHEMA_VERSION)) => from = v,
             Some(found) => {
                 return Err(StoreError::Schema {
                     path: path.to_owned(),
@@ -231,10 +233,84 @@ impl Store {
             }
         }
         store.ensure_node_index()?;
-        if migrate {
+        if from == 1 {
             store.migrate_from_1()?;
         }
+        if from <= 2 {
+            store.migrate_from_2()?;
+        }
         Ok(store)
+    }
+
+    /// Whether the database has a table of this name (tables of older schemas).
+    fn has_table(conn: &Connection, name: &str) -> Result<bool, rusqlite::Error> {
+        conn.query_row(
+            "SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = ?1",
+            [name],
+            |_| Ok(()),
+        )
+        .optional()
+        .map(|o| o.is_some())
+    }
+
+    /// Converts a schema-2 database in one transaction: the `elements` table's rows are written
+    /// to generation 1 of the element state, which the same transaction records before dropping
+    /// the table.
+    fn migrate_from_2(&self) -> Result<(), StoreError> {
+        let err = |e| self.map_err(e);
+        let tx = Transaction::new_unchecked(&self.conn, rusqlite::TransactionBehavior::Immediate)
+            .map_err(err)?;
+        if !Self::has_table(&tx, "elements").map_err(err)? {
+            return Ok(());
+        }
+        let prefix = self.element_state_prefix();
+        node_index::remove_other_generations(&prefix, 0)?;
+        let mut state = ElementStateTx::begin(&prefix, 0)?;
+        {
+            let mut st = tx
+                .prepare(
+                    "SELECT etype, eid, version, ts, visible, lat_e7, lon_e7, tags, refs
+                     FROM elements ORDER BY etype, eid",
+                )
+                .map_err(err)?;
+            let mut rows = st.query([]).map_err(err)?;
+            while let Some(r) = rows.next().map_err(err)? {
+                let Some(t) = ElementType::from_code(r.get(0).map_err(err)?) else {
+                    continue;
+                };
+                let lat: Option<i32> = r.get(5).map_err(err)?;
+                let lon: Option<i32> = r.get(6).map_err(err)?;
+                let tags: String = r.get(7).map_err(err)?;
+                let refs: Option<Vec<u8>> = r.get(8).map_err(err)?;
+                let row = RowRef {
+                    version: r.get(2).map_err(err)?,
+                    ts: r.get(3).map_err(err)?,
+                    visible: r.get(4).map_err(err)?,
+                    pos: lat.zip(lon),
+                    tags: &tags,
+                    refs: refs.as_deref(),
+                };
+                state.put(true, t, r.get(1).map_err(err)?, &row)?;
+            }
+        }
+        let prepared = state.prepare()?;
+        if let Some(p) = &prepared {
+            tx.execute(
+                "INSERT OR REPLACE INTO meta(key, value) VALUES(?1, ?2)",
+                params![ELEMENTS_GENERATION, p.generation().to_string()],
+            )
+            .map_err(err)?;
+        }
+        tx.execute_batch(
+            "DROP TABLE elements;
+             UPDATE meta SET value = '3' WHERE key = 'schema';",
+        )
+        .map_err(err)?;
+        tx.commit().map_err(err)?;
+        if let Some(p) = prepared {
+            p.committed();
+        }
+        Ok(())
     }
 
     /// Converts a schema-1 database (one `edits` row per edit) in one transaction: the edits go
@@ -310,7 +386,7 @@ impl Store {
         let squares: Vec<(i64, i64)> = squares.into_iter().collect();
         put_squares(&tx, &squares).map_err(err)?;
         // Schema 1's index does not mark the nodes that have a row in `elements`.
-        let committed = read_generation(&tx).map_err(err)?;
+        let committed = read_generation(&tx, NODES_GENERATION).map_err(err)?;
         let mut nodes = NodeIndexTx::begin(&self.node_index_prefix(), committed)?;
         {
             let idx = self.node_index()?;
@@ -369,7 +445,7 @@ impl Store {
         }
         let prefix = self.node_index_prefix();
         let mut nodes = NodeIndexTx::begin(&prefix, 0)?;
-        {
+        if Self::has_table(&tx, "elements").map_err(|e| self.map_err(e))? {
             let mut st = tx
                 .prepare(
                     "SELECT eid, version, lat_e7, lon_e7 FROM elements
@@ -411,6 +487,12 @@ impl Store {
         node_index::prefix_for(&self.path)
     }
 
+    /// The file-name prefix of this database's element state.
+    #[must_use]
+    pub fn element_state_prefix(&self) -> PathBuf {
+        element_state::prefix_for(&self.path)
+    }
+
     /// Opens the committed node-location index, the one API through which positions of nodes
     /// are read.
     ///
@@ -421,9 +503,29 @@ impl Store {
         // the file just read; reading the generation again then names the new one.
         let mut attempt = 0;
         loop {
-            let generation = read_generation(&self.conn).map_err(|e| self.map_err(e))?;
+            let generation = read_generation(&self.conn, NODES_GENERATION).map_err(|e| self.map_err(e))?;
             match NodeIndex::open_generation(&self.node_index_prefix(), generation) {
                 Ok(idx) => return Ok(idx),
+                Err(e) if attempt >= 2 => return Err(e.into()),
+                Err(_) => attempt += 1,
+            }
+        }
+    }
+
+    /// Opens the committed element state, the one API through which the stored state of ways,
+    /// relations and tagged nodes is read.
+    ///
+    /// # Errors
+    /// On SQLite failure, or when the state file is missing or damaged.
+    pub fn element_state(&self) -> Result<ElementState, StoreError> {
+        // As for the node index: a file removed by a commit in between is followed to the next.
+        let mut attempt = 0;
+        loop {
+            let generation =
+                read_generation(&self.conn, ELEMENTS_GENERATION).map_err(|e| self.map_err(e))?;
+            match ElementState::open_generation(&self.element_state_prefix(), generation)
+            {
+                Ok(s) => return Ok(s),
                 Err(e) if attempt >= 2 => return Err(e.into()),
                 Err(_) => attempt += 1,
             }
@@ -647,13 +749,12 @@ impl Store {
     }
 }
 
-fn read_generation(conn: &Connection) -> Result<u64, rusqlite::Error> {
+/// A committed file generation recorded in `meta` (0, the empty one, when none is).
+fn read_generation(conn: &Connection, key: &str) -> Result<u64, rusqlite::Error> {
     let v: Option<String> = conn
-        .query_row(
-            "SELECT value FROM meta WHERE key = ?1",
-            [NODES_GENERATION],
-            |r| r.get(0),
-        )
+        .query_row("SELECT value FROM meta WHERE key = ?1", [key], |r| {
+            r.get(0)
+        })
         .optional()?;
     Ok(v.and_then(|v| v.parse().ok()).unwrap_or(0))
 }
@@ -730,82 +831,6 @@ pub struct Prev {
     pub refs: Option<Vec<u8>>,
 }
 
-/// The `elements` statements an ingest's writer prepares once and holds for its whole run.
-pub struct ElementRows<'t> {
-    get: rusqlite::Statement<'t>,
-    replace: rusqlite::Statement<'t>,
-    keep: rusqlite::Statement<'t>,
-    path: &'t Path,
-}
-
-impl ElementRows<'_> {
-    fn err(&self, source: rusqlite::Error) -> StoreError {
-        StoreError::Sqlite {
-            path: self.path.to_owned(),
-            source,
-        }
-    }
-
-    /// The latest stored state of an element.
-    ///
-    /// # Errors
-    /// On SQLite failure.
-    pub fn get(&mut self, t: ElementType, id: i64) -> Result<Option<Prev>, StoreError> {
-        let r = self
-            .get
-            .query_row(params![t.code(), id], |r| {
-                Ok(Prev {
-                    version: r.get(0)?,
-                    ts: r.get(1)?,
-                    tags: r.get(2)?,
-                    lat_e7: r.get(3)?,
-                    lon_e7: r.get(4)?,
-                    refs: r.get(5)?,
-                })
-            })
-            .optional();
-        r.map_err(|e| self.err(e))
-    }
-
-    /// Writes the latest state of an element. With `replace`, the caller checked the version is
-    /// newer than the stored one; without it (a version 1 written without looking up the
-    /// stored state), an existing row, which can only be as new or newer, is kept.
-    ///
-    /// # Errors
-    /// On SQLite failure.
-    #[allow(clippy::too_many_arguments, reason = "one column each")]
-    pub fn put(
-        &mut self,
-        replace: bool,
-        t: ElementType,
-        id: i64,
-        version: i64,
-        ts: i64,
-        visible: bool,
-        pos: Option<(i32, i32)>,
-        tags: &str,
-        refs: Option<&[u8]>,
-    ) -> Result<(), StoreError> {
-        let st = if replace {
-            &mut self.replace
-        } else {
-            &mut self.keep
-        };
-        let r = st.execute(params![
-            t.code(),
-            id,
-            version,
-            ts,
-            visible,
-            pos.map(|p| p.0),
-            pos.map(|p| p.1),
-            tags,
-            refs
-        ]);
-        r.map(|_| ()).map_err(|e| self.err(e))
-    }
-}
-
 /// One ingest's write transaction.
 pub struct IngestTx<'a> {
     tx: Transaction<'a>,
@@ -820,34 +845,12 @@ impl IngestTx<'_> {
         }
     }
 
-    /// Prepares the `elements` statements of the writer.
-    ///
-    /// # Errors
-    /// On SQLite failure.
-    pub fn element_rows(&self) -> Result<ElementRows<'_>, StoreError> {
-        let prep = |sql: &str| self.tx.prepare(sql).map_err(|e| self.err(e));
-        Ok(ElementRows {
-            get: prep(
-                "SELECT version, ts, tags, lat_e7, lon_e7, refs FROM elements WHERE etype = ?1 AND eid = ?2",
-            )?,
-            replace: prep(
-                "INSERT OR REPLACE INTO elements(etype, eid, version, ts, visible, lat_e7, lon_e7, tags, refs)
-                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
-            )?,
-            keep: prep(
-                "INSERT OR IGNORE INTO elements(etype, eid, version, ts, visible, lat_e7, lon_e7, tags, refs)
-                 VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
-            )?,
-            path: &self.path,
-        })
-    }
-
     /// The committed node-index generation (the one this transaction started from).
     ///
     /// # Errors
     /// On SQLite failure.
     pub fn node_generation(&self) -> Result<u64, StoreError> {
-        read_generation(&self.tx).map_err(|e| self.err(e))
+        read_generation(&self.tx, NODES_GENERATION).map_err(|e| self.err(e))
     }
 
     /// Records the node-index generation this ingest wrote; it becomes current at commit.
@@ -862,6 +865,22 @@ impl IngestTx<'_> {
             )
             .map(|_| ())
             .map_err(|e| self.err(e))
+    }
+
+    /// The committed element-state generation (the one this transaction started from).
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn elements_generation(&self) -> Result<u64, StoreError> {
+        read_generation(&self.tx, ELEMENTS_GENERATION).map_err(|e| self.err(e))
+    }
+
+    /// Records the element-state generation this ingest wrote; it becomes current at commit.
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn set_elements_generation(&self, generation: u64) -> Result<(), StoreError> {
+        self.set_meta(ELEMENTS_GENERATION, &generation.to_string())
     }
 
     /// Sets a `meta` value; it becomes visible at commit (used for replication sequences).
@@ -943,31 +962,6 @@ impl IngestTx<'_> {
             cs.tag("source").unwrap_or(""),
         ])
         .map(|_| ())
-        .map_err(|e| self.err(e))
-    }
-
-    /// The latest stored state of an element.
-    ///
-    /// # Errors
-    /// On SQLite failure.
-    pub fn element(&self, t: ElementType, id: i64) -> Result<Option<Prev>, StoreError> {
-        let mut st = self
-            .tx
-            .prepare_cached(
-                "SELECT version, ts, tags, lat_e7, lon_e7, refs FROM elements WHERE etype = ?1 AND eid = ?2",
-            )
-            .map_err(|e| self.err(e))?;
-        st.query_row(params![t.code(), id], |r| {
-            Ok(Prev {
-                version: r.get(0)?,
-                ts: r.get(1)?,
-                tags: r.get(2)?,
-                lat_e7: r.get(3)?,
-                lon_e7: r.get(4)?,
-                refs: r.get(5)?,
-            })
-        })
-        .optional()
         .map_err(|e| self.err(e))
     }
 

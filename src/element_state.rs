@@ -1,0 +1,719 @@
+//! The element state: the latest stored version of every way, relation and tagged node (its
+//! tags, refs or members, position and visibility), in a sorted file next to the state database.
+//!
+//! An ingest reads the state an edit replaces (for the edit log's "before" side) and writes the
+//! new one. Kept as SQLite rows, this cost a B-tree search, a row insert and the binding of nine
+//! values per element, about a third of an ingest, and once the table outgrew SQLite's page
+//! cache every lookup became a read from the file (BENCHMARKS.md, "The element state"). Here the
+//! committed state is one immutable file, memory-mapped: a lookup is a binary search in a small
+//! in-memory directory and a scan of one block of about [`BLOCK_BYTES`]. An ingest keeps its
+//! changes in memory (one arena of encoded rows and a hash map), and writes the next file by
+//! merging them with the committed one in key order.
+//!
+//! ## Generations and crash consistency
+//! The same protocol as the node-location index ([`crate::node_index`]): the state of database
+//! `region.db` is the file `region.db.elements.<g>`, the generation `g` is recorded in the
+//! database's `meta` table, an ingest writes `g+1` (temporary file, synced, renamed, directory
+//! synced) before the SQLite commit that names it, and files of other generations are leftovers
+//! that the next ingest removes. Generation 0 is the empty state and has no file.
+//!
+//! ## File format (version 1)
+//! `HXVELEM1` and 8 zero bytes; blocks of records sorted by (element type, id), each record
+//! `type: u8, id: zigzag varint, body length: varint, body`; the directory (per block: type
+//! `u8`, first id `i64` and offset `u64`, little-endian); a footer of directory offset, block
+//! count and row count (`u64` each) and `HXVELEM1`. A body is `version, timestamp` (zigzag
+//! varints), a flags byte (1 visible, 2 has a position, 4 has refs), latitude and longitude
+//! (zigzag varints, when present), the packed tags (length and bytes) and the packed refs
+//! (length and bytes, when present).
+
+use std::fs::File;
+use std::io::{BufWriter, Write};
+use std::path::{Path, PathBuf};
+
+use crate::model::ElementType;
+use crate::node_index::generation_path;
+use crate::store::edit_log::{put_bytes, put_signed, put_varint, unzigzag};
+
+/// A block is closed once it holds this many bytes (a lookup scans at most one block).
+pub const BLOCK_BYTES: usize = 2048;
+const MAGIC: &[u8; 8] = b"HXVELEM1";
+const HEADER_BYTES: usize = 16;
+const FOOTER_BYTES: usize = 32;
+const DIR_ENTRY_BYTES: usize = 17;
+/// Encoded rows an ingest holds in memory before merging them into a temporary file.
+pub const DEFAULT_SPILL_BYTES: usize = 128 << 20;
+
+const VISIBLE: u8 = 1;
+const HAS_POS: u8 = 2;
+const HAS_REFS: u8 = 4;
+
+/// Errors of the element state; each names its file.
+#[derive(Debug, thiserror::Error)]
+pub enum ElementStateError {
+    #[error("{path}: element state: {source}")]
+    Io {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    #[error("{path}: element state is damaged: {message}")]
+    Damaged { path: PathBuf, message: String },
+}
+
+fn io_err(path: &Path) -> impl Fn(std::io::Error) -> ElementStateError + '_ {
+    move |source| ElementStateError::Io {
+        path: path.to_owned(),
+        source,
+    }
+}
+
+/// The file-name prefix of the element state of a database file (`region.db` →
+/// `region.db.elements`).
+#[must_use]
+pub fn prefix_for(db: &Path) -> PathBuf {
+    let mut s = db.as_os_str().to_owned();
+    s.push(".elements");
+    PathBuf::from(s)
+}
+
+/// An element's key: its type's code and its id. Files and merges are in this order.
+type Key = (u8, i64);
+
+fn key(t: ElementType, id: i64) -> Key {
+    (type_code(t), id)
+}
+
+/// The type's code (0, 1 or 2) as stored.
+const fn type_code(t: ElementType) -> u8 {
+    t.code() as u8
+}
+
+/// The stored state of one element.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Row {
+    pub version: i64,
+    pub ts: i64,
+    pub visible: bool,
+    /// Latitude and longitude in 1e-7 degrees.
+    pub pos: Option<(i32, i32)>,
+    /// Packed tags (`crate::store::pack_tags`).
+    pub tags: String,
+    /// Packed way refs or relation members, if any.
+    pub refs: Option<Vec<u8>>,
+}
+
+/// A row's fields by reference, as the writer has them.
+#[derive(Debug, Clone, Copy)]
+pub struct RowRef<'a> {
+    pub version: i64,
+    pub ts: i64,
+    pub visible: bool,
+    pub pos: Option<(i32, i32)>,
+    pub tags: &'a str,
+    pub refs: Option<&'a [u8]>,
+}
+
+fn encode(r: &RowRef<'_>, out: &mut Vec<u8>) {
+    put_signed(out, r.version);
+    put_signed(out, r.ts);
+    let flags = u8::from(r.visible) * VISIBLE
+        | u8::from(r.pos.is_some()) * HAS_POS
+        | u8::from(r.refs.is_some()) * HAS_REFS;
+    out.push(flags);
+    if let Some((lat, lon)) = r.pos {
+        put_signed(out, lat.into());
+        put_signed(out, lon.into());
+    }
+    put_bytes(out, r.tags.as_bytes());
+    if let Some(refs) = r.refs {
+        put_bytes(out, refs);
+    }
+}
+
+/// A reading position in a byte slice; `None` past its end.
+struct Cursor<'a> {
+    data: &'a [u8],
+    at: usize,
+}
+
+impl<'a> Cursor<'a> {
+    fn byte(&mut self) -> Option<u8> {
+        let b = *self.data.get(self.at)?;
+        self.at += 1;
+        Some(b)
+    }
+
+    fn varint(&mut self) -> Option<u64> {
+        let mut v = 0u64;
+        for shift in (0..64).step_by(7) {
+            let b = self.byte()?;
+            v |= u64::from(b & 0x7F) << shift;
+            if b < 0x80 {
+                return Some(v);
+            }
+        }
+        None
+    }
+
+    fn signed(&mut self) -> Option<i64> {
+        self.varint().map(unzigzag)
+    }
+
+    fn bytes(&mut self) -> Option<&'a [u8]> {
+        let n = usize::try_from(self.varint()?).ok()?;
+        let end = self.at.checked_add(n).filter(|&e| e <= self.data.len())?;
+        let b = &self.data[self.at..end];
+        self.at = end;
+        Some(b)
+    }
+
+    /// The next record of a block: its key and body.
+    fn record(&mut self) -> Option<(Key, &'a [u8])> {
+        let t = self.byte()?;
+        let id = self.signed()?;
+        Some(((t, id), self.bytes()?))
+    }
+}
+
+fn decode(body: &[u8]) -> Option<Row> {
+    let mut c = Cursor { data: body, at: 0 };
+    let version = c.signed()?;
+    let ts = c.signed()?;
+    let flags = c.byte()?;
+    let pos = if flags & HAS_POS != 0 {
+        let lat = i32::try_from(c.signed()?).ok()?;
+        let lon = i32::try_from(c.signed()?).ok()?;
+        Some((lat, lon))
+    } else {
+        None
+    };
+    let tags = std::str::from_utf8(c.bytes()?).ok()?.to_owned();
+    let refs = if flags & HAS_REFS != 0 {
+        Some(c.bytes()?.to_vec())
+    } else {
+        None
+    };
+    (c.at == body.len()).then_some(Row {
+        version,
+        ts,
+        visible: flags & VISIBLE != 0,
+        pos,
+        tags,
+        refs,
+    })
+}
+
+/// A committed element-state file (or the empty state of generation 0), read-only.
+#[derive(Debug)]
+pub struct ElementState {
+    map: Option<memmap2::Mmap>,
+    path: PathBuf,
+    /// First key of each block, and the block's start offset.
+    dir: Vec<(Key, usize)>,
+    /// Where the blocks end (the directory's offset).
+    blocks_end: usize,
+    rows: u64,
+}
+
+impl ElementState {
+    /// The empty state (generation 0).
+    #[must_use]
+    pub fn empty() -> Self {
+        Self {
+            map: None,
+            path: PathBuf::new(),
+            dir: Vec::new(),
+            blocks_end: 0,
+            rows: 0,
+        }
+    }
+
+    /// Opens generation `generation` of the state whose files start with `prefix`.
+    ///
+    /// # Errors
+    /// When the file is missing, unreadable or damaged.
+    pub fn open_generation(prefix: &Path, generation: u64) -> Result<Self, ElementStateError> {
+        if generation == 0 {
+            return Ok(Self::empty());
+        }
+        Self::open(&generation_path(prefix, generation))
+    }
+
+    /// Opens a state file and reads its directory.
+    ///
+    /// # Errors
+    /// When the file is missing, unreadable or damaged.
+    pub fn open(path: &Path) -> Result<Self, ElementStateError> {
+        let damaged = |message: &str| ElementStateError::Damaged {
+            path: path.to_owned(),
+            message: message.to_owned(),
+        };
+        let file = File::open(path).map_err(io_err(path))?;
+        // SAFETY: a state file is written whole, synced and renamed into place before any
+        // reader can name it, and is never changed afterwards, only removed (which keeps an
+        // existing mapping valid). Every read below is bounds-checked against the mapping.
+        let map = unsafe { memmap2::Mmap::map(&file) }.map_err(io_err(path))?;
+        let n = map.len();
+        if n < HEADER_BYTES + FOOTER_BYTES || &map[..8] != MAGIC || &map[n - 8..] != MAGIC {
+            return Err(damaged("not an element-state file (bad size or magic)"));
+        }
+        let word = |at: usize| {
+            map.get(at..at + 8)
+                .and_then(|b| b.try_into().ok())
+                .map(u64::from_le_bytes)
+        };
+        let foot = n - FOOTER_BYTES;
+        let (Some(dir_at), Some(blocks), Some(rows)) = (word(foot), word(foot + 8), word(foot + 16))
+        else {
+            return Err(damaged("footer unreadable"));
+        };
+        let dir_at = usize::try_from(dir_at).map_err(|_| damaged("directory offset"))?;
+        let blocks = usize::try_from(blocks).map_err(|_| damaged("block count"))?;
+        if dir_at < HEADER_BYTES
+            || blocks.checked_mul(DIR_ENTRY_BYTES).and_then(|b| b.checked_add(dir_at)) != Some(foot)
+        {
+            return Err(damaged("directory does not fit the file"));
+        }
+        let mut dir = Vec::with_capacity(blocks);
+        for b in 0..blocks {
+            let at = dir_at + b * DIR_ENTRY_BYTES;
+            let (Some(id), Some(off)) = (word(at + 1), word(at + 9)) else {
+                return Err(damaged("directory unreadable"));
+            };
+            let off = usize::try_from(off).map_err(|_| damaged("block offset"))?;
+            let key = (map[at], id as i64);
+            if off < HEADER_BYTES
+                || off >= dir_at
+                || dir.last().is_some_and(|&(k, o): &(Key, usize)| k >= key || o >= off)
+            {
+                return Err(damaged("directory out of order"));
+            }
+            dir.push((key, off));
+        }
+        Ok(Self {
+            map: Some(map),
+            path: path.to_owned(),
+            dir,
+            blocks_end: dir_at,
+            rows,
+        })
+    }
+
+    /// Rows in the state.
+    #[must_use]
+    pub const fn len(&self) -> u64 {
+        self.rows
+    }
+
+    /// Whether the state holds no row.
+    #[must_use]
+    pub const fn is_empty(&self) -> bool {
+        self.rows == 0
+    }
+
+    fn damaged(&self, message: &str) -> ElementStateError {
+        ElementStateError::Damaged {
+            path: self.path.clone(),
+            message: message.to_owned(),
+        }
+    }
+
+    /// The bytes of block `b`.
+    fn block(&self, b: usize) -> &[u8] {
+        let (Some(map), Some(&(_, start))) = (&self.map, self.dir.get(b)) else {
+            return &[];
+        };
+        let end = self.dir.get(b + 1).map_or(self.blocks_end, |d| d.1);
+        map.get(start..end).unwrap_or(&[])
+    }
+
+    /// The encoded body of an element's row.
+    fn body(&self, key: Key) -> Result<Option<&[u8]>, ElementStateError> {
+        let Some(b) = self.dir.partition_point(|d| d.0 <= key).checked_sub(1) else {
+            return Ok(None);
+        };
+        let mut c = Cursor {
+            data: self.block(b),
+            at: 0,
+        };
+        while c.at < c.data.len() {
+            let (k, body) = c.record().ok_or_else(|| self.damaged("record cut short"))?;
+            if k == key {
+                return Ok(Some(body));
+            }
+            if k > key {
+                break;
+            }
+        }
+        Ok(None)
+    }
+
+    /// The stored state of an element.
+    ///
+    /// # Errors
+    /// When the file is damaged.
+    pub fn get(&self, t: ElementType, id: i64) -> Result<Option<Row>, ElementStateError> {
+        match self.body(key(t, id))? {
+            Some(b) => decode(b)
+                .map(Some)
+                .ok_or_else(|| self.damaged("row unreadable")),
+            None => Ok(None),
+        }
+    }
+
+    /// Whether an element has a stored state.
+    ///
+    /// # Errors
+    /// When the file is damaged.
+    pub fn contains(&self, t: ElementType, id: i64) -> Result<bool, ElementStateError> {
+        Ok(self.body(key(t, id))?.is_some())
+    }
+
+    /// Every row of one element type, in id order.
+    pub fn rows_of(
+        &self,
+        t: ElementType,
+    ) -> impl Iterator<Item = Result<(i64, Row), ElementStateError>> + '_ {
+        let code = type_code(t);
+        let first = self.dir.partition_point(|d| d.0 < (code, i64::MIN)).saturating_sub(1);
+        self.records_from(first)
+            .skip_while(move |r| r.as_ref().is_ok_and(|(k, _)| k.0 < code))
+            .take_while(move |r| r.as_ref().map_or(true, |(k, _)| k.0 == code))
+            .map(|r| {
+                let (k, body) = r?;
+                let row = decode(body).ok_or_else(|| self.damaged("row unreadable"))?;
+                Ok((k.1, row))
+            })
+    }
+
+    /// Every record from block `first` on, in key order, bodies still encoded.
+    fn records_from(
+        &self,
+        first: usize,
+    ) -> impl Iterator<Item = Result<(Key, &[u8]), ElementStateError>> + '_ {
+        let mut b = first;
+        let mut c = Cursor { data: &[], at: 0 };
+        std::iter::from_fn(move || {
+            while c.at >= c.data.len() {
+                if b >= self.dir.len() {
+                    return None;
+                }
+                c = Cursor {
+                    data: self.block(b),
+                    at: 0,
+                };
+                b += 1;
+            }
+            Some(c.record().ok_or_else(|| self.damaged("record cut short")))
+        })
+    }
+}
+
+/// Writes a state file from records in strictly increasing key order.
+struct StateWriter {
+    out: BufWriter<File>,
+    path: PathBuf,
+    at: usize,
+    block_start: usize,
+    dir: Vec<(Key, usize)>,
+    last: Option<Key>,
+    rows: u64,
+    scratch: Vec<u8>,
+}
+
+impl StateWriter {
+    fn create(path: &Path) -> Result<Self, ElementStateError> {
+        let file = File::create(path).map_err(io_err(path))?;
+        let mut out = BufWriter::with_capacity(1 << 20, file);
+        out.write_all(MAGIC).map_err(io_err(path))?;
+        out.write_all(&[0; HEADER_BYTES - 8]).map_err(io_err(path))?;
+        Ok(Self {
+            out,
+            path: path.to_owned(),
+            at: HEADER_BYTES,
+            block_start: HEADER_BYTES,
+            dir: Vec::new(),
+            last: None,
+            rows: 0,
+            scratch: Vec::with_capacity(64),
+        })
+    }
+
+    fn push(&mut self, key: Key, body: &[u8]) -> Result<(), ElementStateError> {
+        if self.last.is_some_and(|l| l >= key) {
+            return Err(ElementStateError::Damaged {
+                path: self.path.clone(),
+                message: format!("rows out of order at {key:?}"),
+            });
+        }
+        if self.dir.is_empty() || self.at - self.block_start >= BLOCK_BYTES {
+            self.block_start = self.at;
+            self.dir.push((key, self.at));
+        }
+        self.scratch.clear();
+        self.scratch.push(key.0);
+        put_signed(&mut self.scratch, key.1);
+        put_varint(&mut self.scratch, body.len() as u64);
+        self.out.write_all(&self.scratch).map_err(io_err(&self.path))?;
+        self.out.write_all(body).map_err(io_err(&self.path))?;
+        self.at += self.scratch.len() + body.len();
+        self.last = Some(key);
+        self.rows += 1;
+        Ok(())
+    }
+
+    /// Writes the directory and footer and syncs the file.
+    fn finish(mut self) -> Result<(), ElementStateError> {
+        let e = io_err(&self.path);
+        let dir_at = self.at as u64;
+        for &((t, id), off) in &self.dir {
+            self.out.write_all(&[t]).map_err(&e)?;
+            self.out.write_all(&id.to_le_bytes()).map_err(&e)?;
+            self.out.write_all(&(off as u64).to_le_bytes()).map_err(&e)?;
+        }
+        for w in [dir_at, self.dir.len() as u64, self.rows] {
+            self.out.write_all(&w.to_le_bytes()).map_err(&e)?;
+        }
+        self.out.write_all(MAGIC).map_err(&e)?;
+        let file = self.out.into_inner().map_err(|x| e(x.into_error()))?;
+        file.sync_all().map_err(&e)
+    }
+}
+
+/// A staged row: where its encoding lies in the arena, and whether it only applies when the
+/// element has no committed state (a created version 1, which replaces nothing).
+#[derive(Debug, Clone, Copy)]
+struct Staged {
+    start: usize,
+    end: usize,
+    if_absent: bool,
+}
+
+/// The changes one ingest makes to the element state, staged until [`ElementStateTx::prepare`].
+///
+/// Lookups see the committed state and everything staged so far. Staged rows are encoded into
+/// one arena; past `spill_bytes` they are merged with the base into a temporary base file, so
+/// memory stays bounded for any input size.
+pub struct ElementStateTx {
+    prefix: PathBuf,
+    committed: u64,
+    base: ElementState,
+    /// Whether `base` is a temporary merge (deleted when replaced or dropped).
+    base_is_temp: bool,
+    arena: Vec<u8>,
+    staged: foldhash::HashMap<Key, Staged>,
+    spill_bytes: usize,
+    temp_seq: u32,
+    changed: bool,
+}
+
+impl ElementStateTx {
+    /// Starts staging changes on top of committed generation `committed`.
+    ///
+    /// # Errors
+    /// When the committed file cannot be opened.
+    pub fn begin(prefix: &Path, committed: u64) -> Result<Self, ElementStateError> {
+        Self::with_spill_bytes(prefix, committed, DEFAULT_SPILL_BYTES)
+    }
+
+    /// Like [`ElementStateTx::begin`] with a chosen memory bound (tests use small ones to
+    /// exercise the merging path).
+    ///
+    /// # Errors
+    /// When the committed file cannot be opened.
+    pub fn with_spill_bytes(
+        prefix: &Path,
+        committed: u64,
+        spill_bytes: usize,
+    ) -> Result<Self, ElementStateError> {
+        Ok(Self {
+            prefix: prefix.to_owned(),
+            committed,
+            base: ElementState::open_generation(prefix, committed)?,
+            base_is_temp: false,
+            arena: Vec::new(),
+            staged: foldhash::HashMap::default(),
+            spill_bytes: spill_bytes.max(1),
+            temp_seq: 0,
+            changed: false,
+        })
+    }
+
+    fn temp_path(&mut self, what: &str) -> PathBuf {
+        self.temp_seq += 1;
+        let mut s = generation_path(&self.prefix, self.committed + 1).into_os_string();
+        s.push(format!(".{what}{}.tmp", self.temp_seq));
+        PathBuf::from(s)
+    }
+
+    /// The encoded row of an element, staged or committed.
+    fn body(&self, key: Key) -> Result<Option<&[u8]>, ElementStateError> {
+        match self.staged.get(&key) {
+            Some(s) if !s.if_absent => Ok(self.arena.get(s.start..s.end)),
+            Some(s) => match self.base.body(key)? {
+                Some(b) => Ok(Some(b)),
+                None => Ok(self.arena.get(s.start..s.end)),
+            },
+            None => self.base.body(key),
+        }
+    }
+
+    /// The latest state of an element: staged, else committed.
+    ///
+    /// # Errors
+    /// When a state file is damaged.
+    pub fn get(&self, t: ElementType, id: i64) -> Result<Option<Row>, ElementStateError> {
+        match self.body(key(t, id))? {
+            Some(b) => decode(b).map(Some).ok_or_else(|| ElementStateError::Damaged {
+                path: self.base.path.clone(),
+                message: "row unreadable".to_owned(),
+            }),
+            None => Ok(None),
+        }
+    }
+
+    /// Whether an element has a state, staged or committed.
+    ///
+    /// # Errors
+    /// When a state file is damaged.
+    pub fn contains(&self, t: ElementType, id: i64) -> Result<bool, ElementStateError> {
+        Ok(self.body(key(t, id))?.is_some())
+    }
+
+    /// Stages an element's state. With `replace`, it replaces any earlier state (the caller
+    /// checked it is newer); without it (a version 1 staged without looking up the stored
+    /// state), an existing state, which can only be as new or newer, is kept.
+    ///
+    /// # Errors
+    /// When merging into a temporary file fails.
+    pub fn put(
+        &mut self,
+        replace: bool,
+        t: ElementType,
+        id: i64,
+        row: &RowRef<'_>,
+    ) -> Result<(), ElementStateError> {
+        let key = key(t, id);
+        if !replace && self.staged.contains_key(&key) {
+            return Ok(());
+        }
+        self.changed = true;
+        let start = self.arena.len();
+        encode(row, &mut self.arena);
+        self.staged.insert(
+            key,
+            Staged {
+                start,
+                end: self.arena.len(),
+                if_absent: !replace,
+            },
+        );
+        if self.arena.len() >= self.spill_bytes {
+            self.spill()?;
+        }
+        Ok(())
+    }
+
+    /// Merges the base with the staged rows into `out`.
+    fn merge_into(&mut self, out: &mut StateWriter) -> Result<(), ElementStateError> {
+        let mut staged: Vec<(Key, Staged)> = self.staged.drain().collect();
+        staged.sort_unstable_by_key(|s| s.0);
+        let mut base = self.base.records_from(0).peekable();
+        for (key, s) in staged {
+            let mut base_has = false;
+            while let Some(r) = base.next_if(|r| r.as_ref().map_or(true, |(k, _)| *k <= key)) {
+                let (k, body) = r?;
+                if k == key {
+                    base_has = true;
+                    if s.if_absent {
+                        out.push(k, body)?;
+                    }
+                } else {
+                    out.push(k, body)?;
+                }
+            }
+            if !(base_has && s.if_absent) {
+                out.push(key, self.arena.get(s.start..s.end).unwrap_or(&[]))?;
+            }
+        }
+        for r in base {
+            let (k, body) = r?;
+            out.push(k, body)?;
+        }
+        self.arena.clear();
+        Ok(())
+    }
+
+    /// Merges the staged rows into a new temporary base, emptying memory.
+    fn spill(&mut self) -> Result<(), ElementStateError> {
+        let path = self.temp_path("base");
+        let mut w = StateWriter::create(&path)?;
+        self.merge_into(&mut w)?;
+        w.finish()?;
+        let old = std::mem::replace(&mut self.base, ElementState::open(&path)?);
+        if self.base_is_temp {
+            let _ = std::fs::remove_file(&old.path);
+        }
+        self.base_is_temp = true;
+        self.arena.shrink_to(self.spill_bytes.min(1 << 20));
+        self.staged.shrink_to(1 << 16);
+        Ok(())
+    }
+
+    /// Writes the next generation's file (complete, synced and renamed into place) and returns
+    /// it, or `None` when nothing was staged. The caller records the generation in its database
+    /// transaction and then calls [`PreparedState::committed`].
+    ///
+    /// # Errors
+    /// When writing the new file fails; the committed generation is untouched.
+    pub fn prepare(mut self) -> Result<Option<PreparedState>, ElementStateError> {
+        if !self.changed {
+            return Ok(None);
+        }
+        let generation = self.committed + 1;
+        let final_path = generation_path(&self.prefix, generation);
+        let temp = self.temp_path("new");
+        let mut w = StateWriter::create(&temp)?;
+        self.merge_into(&mut w)?;
+        w.finish()?;
+        std::fs::rename(&temp, &final_path).map_err(io_err(&final_path))?;
+        crate::node_index::sync_dir(&final_path).map_err(io_err(&final_path))?;
+        Ok(Some(PreparedState {
+            prefix: self.prefix.clone(),
+            previous: self.committed,
+            generation,
+        }))
+    }
+}
+
+impl Drop for ElementStateTx {
+    fn drop(&mut self) {
+        // Temporary files only; the committed generation is never touched.
+        if self.base_is_temp {
+            let _ = std::fs::remove_file(&self.base.path);
+        }
+    }
+}
+
+/// A new generation written and renamed into place, waiting for the database commit.
+#[derive(Debug)]
+pub struct PreparedState {
+    prefix: PathBuf,
+    previous: u64,
+    generation: u64,
+}
+
+impl PreparedState {
+    /// The generation to record in the database transaction.
+    #[must_use]
+    pub const fn generation(&self) -> u64 {
+        self.generation
+    }
+
+    /// After the database commit: removes the previous generation's file (best effort; a
+    /// leftover is removed by the next ingest).
+    pub fn committed(self) {
+        if self.previous > 0 {
+            let _ = std::fs::remove_file(generation_path(&self.prefix, self.previous));
+        }
+    }
+}
