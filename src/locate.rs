@@ -9,9 +9,8 @@
 
 use std::collections::HashMap;
 
-
-use crate::model::{Coord, ElementType, Op};
 use crate::element_state::ElementState;
+use crate::model::{Coord, ElementType, Op};
 use crate::node_index::NodeIndex;
 use crate::store::{member_decode, unpack_refs, Store, StoreError};
 use crate::summary::Placement;

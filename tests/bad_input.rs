@@ -33,7 +33,6 @@ fn snapshot(db: &Path) -> Vec<String> {
         "edit_blocks",
         "changeset_work",
         "grid_first",
-        "elements",
         "skipped",
         "meta",
     ]
@@ -60,7 +59,15 @@ fn snapshot(db: &Path) -> Vec<String> {
             .collect();
         format!("{t}: {}", rows.join("\n"))
     })
+    .chain(element_state(db))
     .collect()
+}
+
+/// The element state beside the database, row by row.
+fn element_state(db: &Path) -> Vec<String> {
+    let store = hexvigil::store::Store::open(db).unwrap();
+    let state = store.element_state().unwrap();
+    state.rows().map(|r| format!("{:?}", r.unwrap())).collect()
 }
 
 fn hexvigil(args: &[&std::ffi::OsStr]) -> std::process::Output {

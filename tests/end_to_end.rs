@@ -208,7 +208,6 @@ fn table_counts(db: &Path) -> Vec<i64> {
         "edit_blocks",
         "changeset_work",
         "grid_first",
-        "elements",
         "skipped",
     ]
     .iter()
@@ -216,6 +215,11 @@ fn table_counts(db: &Path) -> Vec<i64> {
         c.query_row(&format!("SELECT COUNT(*) FROM {t}"), [], |r| r.get(0))
             .unwrap()
     })
+    .chain([hexvigil::store::Store::open(db)
+        .unwrap()
+        .element_state()
+        .unwrap()
+        .len() as i64])
     .collect()
 }
 

@@ -36,8 +36,10 @@ fn ingest_opts(db: &Path, inputs: &[PathBuf], options: IngestOptions) -> IngestS
 fn dump(db: &Path) -> Vec<String> {
     let store = Store::open(db).unwrap();
     let mut out = Vec::new();
+    for r in store.element_state().unwrap().rows() {
+        out.push(format!("element state: {:?}", r.unwrap()));
+    }
     for q in [
-        "SELECT * FROM elements ORDER BY etype, eid",
         "SELECT * FROM edit_blocks ORDER BY id",
         "SELECT * FROM changeset_work ORDER BY changeset",
         "SELECT * FROM grid_first ORDER BY square",
@@ -90,34 +92,20 @@ fn pbf_snapshot_gives_the_same_database_as_its_xml() {
     assert!(da.contains(&"node 10: -452040000 1799999999 v2".to_owned()));
     assert!(da.contains(&"node 12: 899999999 -1800000000 v7".to_owned()));
     assert!(da.contains(&"node 8000000000: 452150000 -335850000 v1".to_owned()));
-    // Untagged snapshot nodes live only in the index; tagged ones in `elements` too.
+    // Untagged snapshot nodes live only in the index; tagged ones in the element state too.
     let store = Store::open(&b).unwrap();
-    let nodes_in_elements: i64 = store
-        .conn()
-        .query_row("SELECT count(*) FROM elements WHERE etype = 0", [], |r| {
-            r.get(0)
-        })
-        .unwrap();
-    assert_eq!(nodes_in_elements, 3);
-    let name: String = store
-        .conn()
-        .query_row(
-            "SELECT tags FROM elements WHERE etype = 0 AND eid = 10",
-            [],
-            |r| r.get(0),
-        )
-        .unwrap();
+    let state = store.element_state().unwrap();
+    assert_eq!(state.rows_of(ElementType::Node).count(), 3);
+    let name = state.get(ElementType::Node, 10).unwrap().unwrap().tags;
     assert_eq!(
         unpack_tags(&name).find(|t| t.0 == "name").map(|t| t.1),
         Some("Fjǫrðr – 東の灯台 <light>")
     );
-    let members: Vec<u8> = store
-        .conn()
-        .query_row(
-            "SELECT refs FROM elements WHERE etype = 2 AND eid = 200",
-            [],
-            |r| r.get(0),
-        )
+    let members = state
+        .get(ElementType::Relation, 200)
+        .unwrap()
+        .unwrap()
+        .refs
         .unwrap();
     assert_eq!(
         unpack_refs(&members).count(),
@@ -240,14 +228,8 @@ fn real_extract_matches_the_reference_reader() {
                 } else {
                     ElementType::Relation
                 };
-                let (v, tags, refs): (i64, String, Option<Vec<u8>>) = store
-                    .conn()
-                    .query_row(
-                        "SELECT version, tags, refs FROM elements WHERE etype = ?1 AND eid = ?2",
-                        [t.code(), id],
-                        |row| Ok((row.get(0)?, row.get(1)?, row.get(2)?)),
-                    )
-                    .unwrap();
+                let row = store.element_state().unwrap().get(t, id).unwrap().unwrap();
+                let (v, tags, refs) = (row.version, row.tags, row.refs);
                 assert_eq!(v, version, "{kind} {id}");
                 assert_eq!(
                     unpack_tags(&tags).count().to_string(),

@@ -280,13 +280,7 @@ fn reference_db(dir: &Path, sequences: Option<SequenceRange>, skip: Option<u64>)
 fn dump(db: &Path) -> BTreeMap<String, Vec<String>> {
     let conn = rusqlite::Connection::open(db).unwrap();
     let mut out = BTreeMap::new();
-    for table in [
-        "changesets",
-        "changeset_work",
-        "grid_first",
-        "elements",
-        "skipped",
-    ] {
+    for table in ["changesets", "changeset_work", "grid_first", "skipped"] {
         let mut stmt = conn.prepare(&format!("SELECT * FROM {table}")).unwrap();
         let n = stmt.column_count();
         let mut rows: Vec<String> = stmt
@@ -302,8 +296,14 @@ fn dump(db: &Path) -> BTreeMap<String, Vec<String>> {
         rows.sort();
         out.insert(table.to_owned(), rows);
     }
+    let store = Store::open(db).unwrap();
+    let state = store.element_state().unwrap();
+    out.insert(
+        "element state".to_owned(),
+        state.rows().map(|r| format!("{:?}", r.unwrap())).collect(),
+    );
     // The edit log's blocks depend on how the files were grouped; its edits must not.
-    let edits = Store::open(db).unwrap().edits(i64::MIN, i64::MAX).unwrap();
+    let edits = store.edits(i64::MIN, i64::MAX).unwrap();
     out.insert(
         "edits".to_owned(),
         edits.iter().map(|e| format!("{e:?}")).collect(),

@@ -44,8 +44,8 @@ use crate::node_index::{NodeEntry, NodeIndexTx};
 use crate::progress::Progress;
 use crate::store::edit_log::{BlockBuilder, EditRef, PrevRef};
 use crate::store::{
-    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs,
-    IngestTx, Prev, Store, StoreError, Work,
+    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs, IngestTx, Prev,
+    Store, StoreError, Work,
 };
 use replication::{Replication, SequenceRange};
 use xml::{OsmSink, RawChangeset, RawElement, ReadError, Root, SinkError};
@@ -542,7 +542,8 @@ pub fn ingest_extended(
     let state_committed = tx.elements_generation()?;
     crate::node_index::remove_other_generations(&state_prefix, state_committed)
         .map_err(StoreError::from)?;
-    let mut state = ElementStateTx::begin(&state_prefix, state_committed).map_err(StoreError::from)?;
+    let mut state =
+        ElementStateTx::begin(&state_prefix, state_committed).map_err(StoreError::from)?;
     let mut todo = Vec::new();
     let mut seen = std::collections::HashSet::new();
     for input in hashed {

@@ -26,8 +26,8 @@ use std::path::{Path, PathBuf};
 
 use rusqlite::{params, Connection, OptionalExtension, Transaction};
 
-use crate::model::{ElementType, Op};
 use crate::element_state::{self, ElementState, ElementStateError, ElementStateTx, RowRef};
+use crate::model::{ElementType, Op};
 use crate::node_index::{self, NodeEntry, NodeIndex, NodeIndexError, NodeIndexTx};
 
 /// Current database schema version.
@@ -503,7 +503,8 @@ impl Store {
         // the file just read; reading the generation again then names the new one.
         let mut attempt = 0;
         loop {
-            let generation = read_generation(&self.conn, NODES_GENERATION).map_err(|e| self.map_err(e))?;
+            let generation =
+                read_generation(&self.conn, NODES_GENERATION).map_err(|e| self.map_err(e))?;
             match NodeIndex::open_generation(&self.node_index_prefix(), generation) {
                 Ok(idx) => return Ok(idx),
                 Err(e) if attempt >= 2 => return Err(e.into()),
@@ -523,8 +524,7 @@ impl Store {
         loop {
             let generation =
                 read_generation(&self.conn, ELEMENTS_GENERATION).map_err(|e| self.map_err(e))?;
-            match ElementState::open_generation(&self.element_state_prefix(), generation)
-            {
+            match ElementState::open_generation(&self.element_state_prefix(), generation) {
                 Ok(s) => return Ok(s),
                 Err(e) if attempt >= 2 => return Err(e.into()),
                 Err(_) => attempt += 1,
@@ -752,9 +752,7 @@ impl Store {
 /// A committed file generation recorded in `meta` (0, the empty one, when none is).
 fn read_generation(conn: &Connection, key: &str) -> Result<u64, rusqlite::Error> {
     let v: Option<String> = conn
-        .query_row("SELECT value FROM meta WHERE key = ?1", [key], |r| {
-            r.get(0)
-        })
+        .query_row("SELECT value FROM meta WHERE key = ?1", [key], |r| r.get(0))
         .optional()?;
     Ok(v.and_then(|v| v.parse().ok()).unwrap_or(0))
 }
@@ -1090,23 +1088,28 @@ mod tests {
         assert_eq!(s.skipped().unwrap(), vec![("x".to_owned(), 5)]);
     }
 
-    /// A database from before the node-location index: node positions only in `elements`,
-    /// no generation in `meta`. Opening it builds the index from them.
+    /// A schema-2 database from before the node-location index: node positions only in
+    /// `elements`, no generation in `meta`. Opening it builds the index from them, then moves
+    /// the `elements` rows to the element state and drops the table (schema 3).
     #[test]
-    fn positions_in_elements_are_moved_to_the_index_on_open() {
+    fn a_schema_2_database_is_converted_on_open() {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("old.db");
-        {
-            let s = Store::open(&path).unwrap();
-            s.conn()
-                .execute_batch(
-                    "DELETE FROM meta WHERE key = 'nodes_generation';
-                     INSERT INTO elements VALUES(0, 7, 3, 0, 1, 452000000, -336000000, '', NULL);
-                     INSERT INTO elements VALUES(0, 8, 1, 0, 0, NULL, NULL, '', NULL);
-                     INSERT INTO elements VALUES(1, 7, 1, 0, 1, NULL, NULL, '', NULL);",
-                )
-                .unwrap();
-        }
+        Connection::open(&path)
+            .unwrap()
+            .execute_batch(
+                "CREATE TABLE meta(key TEXT PRIMARY KEY, value TEXT NOT NULL);
+                 INSERT INTO meta VALUES('schema', '2');
+                 CREATE TABLE elements(
+                    etype INTEGER NOT NULL, eid INTEGER NOT NULL, version INTEGER NOT NULL, ts INTEGER NOT NULL,
+                    visible INTEGER NOT NULL, lat_e7 INTEGER, lon_e7 INTEGER, tags TEXT NOT NULL, refs BLOB,
+                    PRIMARY KEY(etype, eid)) WITHOUT ROWID;
+                 INSERT INTO elements VALUES(0, 7, 3, 100, 1, 452000000, -336000000,
+                    'amenity' || char(31) || 'bench' || char(30), NULL);
+                 INSERT INTO elements VALUES(0, 8, 1, 200, 0, NULL, NULL, '', NULL);
+                 INSERT INTO elements VALUES(1, 7, 1, 300, 1, NULL, NULL, '', x'0700000000000000');",
+            )
+            .unwrap();
         let s = Store::open(&path).unwrap();
         let idx = s.node_index().unwrap();
         assert_eq!(idx.len(), 1);
@@ -1115,18 +1118,33 @@ mod tests {
             (e.coord.lat_e7(), e.coord.lon_e7(), e.version),
             (452_000_000, -336_000_000, 3)
         );
-        let generation: String = s
-            .conn()
-            .query_row(
-                "SELECT value FROM meta WHERE key = 'nodes_generation'",
-                [],
-                |r| r.get(0),
-            )
-            .unwrap();
-        assert_eq!(generation, "1");
+        assert_eq!(s.meta("nodes_generation").unwrap().as_deref(), Some("1"));
+        assert_eq!(s.meta("elements_generation").unwrap().as_deref(), Some("1"));
+        assert_eq!(s.meta("schema").unwrap().as_deref(), Some("3"));
+        let state = s.element_state().unwrap();
+        assert_eq!(state.len(), 3);
+        assert_eq!(
+            state.get(ElementType::Node, 7).unwrap(),
+            Some(element_state::Row {
+                version: 3,
+                ts: 100,
+                visible: true,
+                pos: Some((452_000_000, -336_000_000)),
+                tags: "amenity\x1Fbench\x1E".into(),
+                refs: None,
+            })
+        );
+        assert!(!state.get(ElementType::Node, 8).unwrap().unwrap().visible);
+        assert_eq!(
+            state.get(ElementType::Way, 7).unwrap().unwrap().refs,
+            Some(pack_refs([7]))
+        );
+        assert!(!Store::has_table(s.conn(), "elements").unwrap());
         // Opened again: nothing more to do.
         drop(s);
-        assert_eq!(Store::open(&path).unwrap().node_index().unwrap().len(), 1);
+        let s = Store::open(&path).unwrap();
+        assert_eq!(s.node_index().unwrap().len(), 1);
+        assert_eq!(s.element_state().unwrap().len(), 3);
     }
 
     /// A database of schema 1 (one `edits` row per edit) is converted when opened: the same
@@ -1255,7 +1273,16 @@ mod tests {
             squares.get(&grid_square(-100_000_000, 50_000_000)),
             Some(&i64::MIN)
         );
-        assert_eq!(s.meta("schema").unwrap().as_deref(), Some("2"));
+        assert_eq!(s.meta("schema").unwrap().as_deref(), Some("3"));
+        let tagged = s
+            .element_state()
+            .unwrap()
+            .get(ElementType::Node, 5)
+            .unwrap();
+        assert_eq!(
+            tagged.map(|r| (r.version, r.tags)),
+            Some((2, "a\x1Fb\x1E".into()))
+        );
         let idx = s.node_index().unwrap();
         assert!(idx.get(5).unwrap().unwrap().has_row);
         assert!(!idx.get(6).unwrap().unwrap().has_row);
