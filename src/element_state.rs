@@ -115,9 +115,9 @@ pub struct RowRef<'a> {
 fn encode(r: &RowRef<'_>, out: &mut Vec<u8>) {
     put_signed(out, r.version);
     put_signed(out, r.ts);
-    let flags = u8::from(r.visible) * VISIBLE
-        | u8::from(r.pos.is_some()) * HAS_POS
-        | u8::from(r.refs.is_some()) * HAS_REFS;
+    let flags = (u8::from(r.visible) * VISIBLE)
+        | (u8::from(r.pos.is_some()) * HAS_POS)
+        | (u8::from(r.refs.is_some()) * HAS_REFS);
     out.push(flags);
     if let Some((lat, lon)) = r.pos {
         put_signed(out, lat.into());
