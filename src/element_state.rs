@@ -5,8 +5,8 @@
 //! new one. Kept as SQLite rows, this cost a B-tree search, a row insert and the binding of nine
 //! values per element, about a third of an ingest, and once the table outgrew SQLite's page
 //! cache every lookup became a read from the file (BENCHMARKS.md, "The element state"). Here the
-//! committed state is one immutable file, memory-mapped: a lookup is a binary search in a small
-//! in-memory directory and a scan of one block of about [`BLOCK_BYTES`]. An ingest keeps its
+//! committed state is one immutable file: a lookup is a binary search in a small in-memory
+//! directory, one positioned read of a block of about [`BLOCK_BYTES`] and a scan of it. An ingest keeps its
 //! changes in memory (one arena of encoded rows and a hash map), and writes the next file by
 //! merging them with the committed one in key order.
 //!
@@ -40,8 +40,9 @@ const MAGIC: &[u8; 8] = b"HXVELEM1";
 const HEADER_BYTES: usize = 16;
 const FOOTER_BYTES: usize = 32;
 const DIR_ENTRY_BYTES: usize = 17;
-/// Encoded rows an ingest holds in memory before merging them into a temporary file.
-pub const DEFAULT_SPILL_BYTES: usize = 128 << 20;
+/// Encoded rows an ingest holds in memory before merging them into a temporary file (with the
+/// hash map over them, about 90 MiB at this size).
+pub const DEFAULT_SPILL_BYTES: usize = 48 << 20;
 
 const VISIBLE: u8 = 1;
 const HAS_POS: u8 = 2;
@@ -174,6 +175,45 @@ impl<'a> Cursor<'a> {
     }
 }
 
+/// The next record from a reader: `Ok(None)` at a clean end, `Err(None)` when cut short.
+fn read_record(
+    r: &mut impl std::io::Read,
+) -> Result<Option<(Key, Vec<u8>)>, Option<std::io::Error>> {
+    let mut byte = [0u8; 1];
+    let mut next = |r: &mut dyn std::io::Read| -> Result<u8, Option<std::io::Error>> {
+        match r.read_exact(&mut byte) {
+            Ok(()) => Ok(byte[0]),
+            Err(e) if e.kind() == std::io::ErrorKind::UnexpectedEof => Err(None),
+            Err(e) => Err(Some(e)),
+        }
+    };
+    let t = match next(r) {
+        Ok(t) => t,
+        Err(None) => return Ok(None),
+        Err(e) => return Err(e),
+    };
+    let mut varint = |r: &mut dyn std::io::Read| -> Result<u64, Option<std::io::Error>> {
+        let mut v = 0u64;
+        for shift in (0..64).step_by(7) {
+            let b = next(r)?;
+            v |= u64::from(b & 0x7F) << shift;
+            if b < 0x80 {
+                return Ok(v);
+            }
+        }
+        Err(None)
+    };
+    let id = unzigzag(varint(r)?);
+    let n = usize::try_from(varint(r)?).map_err(|_| None)?;
+    if n > 1 << 30 {
+        return Err(None);
+    }
+    let mut body = vec![0u8; n];
+    r.read_exact(&mut body)
+        .map_err(|e| (e.kind() != std::io::ErrorKind::UnexpectedEof).then_some(e))?;
+    Ok(Some(((t, id), body)))
+}
+
 fn decode(body: &[u8]) -> Option<Row> {
     let mut c = Cursor { data: body, at: 0 };
     let version = c.signed()?;
@@ -205,13 +245,15 @@ fn decode(body: &[u8]) -> Option<Row> {
 /// A committed element-state file (or the empty state of generation 0), read-only.
 #[derive(Debug)]
 pub struct ElementState {
-    map: Option<memmap2::Mmap>,
+    file: Option<File>,
     path: PathBuf,
     /// First key of each block, and the block's start offset.
     dir: Vec<(Key, usize)>,
     /// Where the blocks end (the directory's offset).
     blocks_end: usize,
     rows: u64,
+    /// The block last read by a lookup, and its number.
+    block: std::cell::RefCell<(usize, Vec<u8>)>,
 }
 
 impl ElementState {
@@ -219,11 +261,12 @@ impl ElementState {
     #[must_use]
     pub fn empty() -> Self {
         Self {
-            map: None,
+            file: None,
             path: PathBuf::new(),
             dir: Vec::new(),
             blocks_end: 0,
             rows: 0,
+            block: std::cell::RefCell::new((usize::MAX, Vec::new())),
         }
     }
 
@@ -247,23 +290,32 @@ impl ElementState {
             path: path.to_owned(),
             message: message.to_owned(),
         };
+        // Lookups read one block each with a positioned read: the operating system's cache
+        // keeps the file, and the process's memory stays small whatever its size. (A memory
+        // mapping was tried: the kernel maps the cached neighbours of every faulted page, so
+        // the whole file soon counted in the process's resident memory.)
         let file = File::open(path).map_err(io_err(path))?;
-        // SAFETY: a state file is written whole, synced and renamed into place before any
-        // reader can name it, and is never changed afterwards, only removed (which keeps an
-        // existing mapping valid). Every read below is bounds-checked against the mapping.
-        let map = unsafe { memmap2::Mmap::map(&file) }.map_err(io_err(path))?;
-        let n = map.len();
-        if n < HEADER_BYTES + FOOTER_BYTES || &map[..8] != MAGIC || &map[n - 8..] != MAGIC {
+        let n = usize::try_from(file.metadata().map_err(io_err(path))?.len())
+            .map_err(|_| damaged("file too large"))?;
+        let read_at = |at: usize, len: usize| -> Result<Vec<u8>, ElementStateError> {
+            let mut b = vec![0u8; len];
+            std::os::unix::fs::FileExt::read_exact_at(&file, &mut b, at as u64)
+                .map_err(io_err(path))?;
+            Ok(b)
+        };
+        if n < HEADER_BYTES + FOOTER_BYTES || read_at(0, 8)? != MAGIC || read_at(n - 8, 8)? != MAGIC
+        {
             return Err(damaged("not an element-state file (bad size or magic)"));
         }
-        let word = |at: usize| {
-            map.get(at..at + 8)
+        let word = |b: &[u8], at: usize| {
+            b.get(at..at + 8)
                 .and_then(|b| b.try_into().ok())
                 .map(u64::from_le_bytes)
         };
         let foot = n - FOOTER_BYTES;
+        let footer = read_at(foot, FOOTER_BYTES)?;
         let (Some(dir_at), Some(blocks), Some(rows)) =
-            (word(foot), word(foot + 8), word(foot + 16))
+            (word(&footer, 0), word(&footer, 8), word(&footer, 16))
         else {
             return Err(damaged("footer unreadable"));
         };
@@ -277,14 +329,15 @@ impl ElementState {
         {
             return Err(damaged("directory does not fit the file"));
         }
+        let entries = read_at(dir_at, foot - dir_at)?;
         let mut dir = Vec::with_capacity(blocks);
         for b in 0..blocks {
-            let at = dir_at + b * DIR_ENTRY_BYTES;
-            let (Some(id), Some(off)) = (word(at + 1), word(at + 9)) else {
+            let at = b * DIR_ENTRY_BYTES;
+            let (Some(id), Some(off)) = (word(&entries, at + 1), word(&entries, at + 9)) else {
                 return Err(damaged("directory unreadable"));
             };
             let off = usize::try_from(off).map_err(|_| damaged("block offset"))?;
-            let key = (map[at], id as i64);
+            let key = (entries[at], id as i64);
             if off < HEADER_BYTES
                 || off >= dir_at
                 || dir
@@ -296,11 +349,12 @@ impl ElementState {
             dir.push((key, off));
         }
         Ok(Self {
-            map: Some(map),
+            file: Some(file),
             path: path.to_owned(),
             dir,
             blocks_end: dir_at,
             rows,
+            block: std::cell::RefCell::new((usize::MAX, Vec::new())),
         })
     }
 
@@ -323,28 +377,34 @@ impl ElementState {
         }
     }
 
-    /// The bytes of block `b`.
-    fn block(&self, b: usize) -> &[u8] {
-        let (Some(map), Some(&(_, start))) = (&self.map, self.dir.get(b)) else {
-            return &[];
-        };
-        let end = self.dir.get(b + 1).map_or(self.blocks_end, |d| d.1);
-        map.get(start..end).unwrap_or(&[])
-    }
-
-    /// The encoded body of an element's row.
-    fn body(&self, key: Key) -> Result<Option<&[u8]>, ElementStateError> {
-        let Some(b) = self.dir.partition_point(|d| d.0 <= key).checked_sub(1) else {
+    /// Finds an element's encoded row and hands it to `f`.
+    fn find<R>(
+        &self,
+        key: Key,
+        mut f: impl FnMut(&[u8]) -> R,
+    ) -> Result<Option<R>, ElementStateError> {
+        let (Some(file), Some(b)) = (
+            &self.file,
+            self.dir.partition_point(|d| d.0 <= key).checked_sub(1),
+        ) else {
             return Ok(None);
         };
-        let mut c = Cursor {
-            data: self.block(b),
-            at: 0,
-        };
+        let mut held = self.block.borrow_mut();
+        let (number, data) = &mut *held;
+        if *number != b {
+            let start = self.dir[b].1;
+            let end = self.dir.get(b + 1).map_or(self.blocks_end, |d| d.1);
+            data.resize(end - start, 0);
+            *number = usize::MAX;
+            std::os::unix::fs::FileExt::read_exact_at(file, data, start as u64)
+                .map_err(io_err(&self.path))?;
+            *number = b;
+        }
+        let mut c = Cursor { data, at: 0 };
         while c.at < c.data.len() {
             let (k, body) = c.record().ok_or_else(|| self.damaged("record cut short"))?;
             if k == key {
-                return Ok(Some(body));
+                return Ok(Some(f(body)));
             }
             if k > key {
                 break;
@@ -358,10 +418,8 @@ impl ElementState {
     /// # Errors
     /// When the file is damaged.
     pub fn get(&self, t: ElementType, id: i64) -> Result<Option<Row>, ElementStateError> {
-        match self.body(key(t, id))? {
-            Some(b) => decode(b)
-                .map(Some)
-                .ok_or_else(|| self.damaged("row unreadable")),
+        match self.find(key(t, id), decode)? {
+            Some(row) => row.map(Some).ok_or_else(|| self.damaged("row unreadable")),
             None => Ok(None),
         }
     }
@@ -371,7 +429,7 @@ impl ElementState {
     /// # Errors
     /// When the file is damaged.
     pub fn contains(&self, t: ElementType, id: i64) -> Result<bool, ElementStateError> {
-        Ok(self.body(key(t, id))?.is_some())
+        Ok(self.find(key(t, id), |_| ())?.is_some())
     }
 
     /// Every row of one element type, in id order.
@@ -384,12 +442,12 @@ impl ElementState {
             .dir
             .partition_point(|d| d.0 < (code, i64::MIN))
             .saturating_sub(1);
-        self.records_from(first)
+        self.sequential(first)
             .skip_while(move |r| r.as_ref().is_ok_and(|(k, _)| k.0 < code))
             .take_while(move |r| r.as_ref().map_or(true, |(k, _)| k.0 == code))
             .map(|r| {
                 let (k, body) = r?;
-                let row = decode(body).ok_or_else(|| self.damaged("row unreadable"))?;
+                let row = decode(&body).ok_or_else(|| self.damaged("row unreadable"))?;
                 Ok((k.1, row))
             })
     }
@@ -406,26 +464,54 @@ impl ElementState {
             })
     }
 
-    /// Every record from block `first` on, in key order, bodies still encoded.
-    fn records_from(
+    /// Every record from block `first` on, in key order, read with buffered reads (bodies
+    /// owned).
+    fn sequential(
         &self,
         first: usize,
-    ) -> impl Iterator<Item = Result<(Key, &[u8]), ElementStateError>> + '_ {
-        let mut b = first;
-        let mut c = Cursor { data: &[], at: 0 };
+    ) -> impl Iterator<Item = Result<(Key, Vec<u8>), ElementStateError>> + '_ {
+        let start = self.dir.get(first).map_or(self.blocks_end, |d| d.1);
+        let mut reader = self.file.as_ref().map(|file| {
+            std::io::Read::take(
+                std::io::BufReader::with_capacity(
+                    1 << 20,
+                    ReadAt {
+                        file,
+                        at: start as u64,
+                    },
+                ),
+                (self.blocks_end - start) as u64,
+            )
+        });
         std::iter::from_fn(move || {
-            while c.at >= c.data.len() {
-                if b >= self.dir.len() {
-                    return None;
-                }
-                c = Cursor {
-                    data: self.block(b),
-                    at: 0,
-                };
-                b += 1;
+            let r = reader.as_mut()?;
+            match read_record(r) {
+                Ok(Some(rec)) => Some(Ok(rec)),
+                Ok(None) => None,
+                Err(e) => Some(Err(match e {
+                    Some(io) => ElementStateError::Io {
+                        path: self.path.clone(),
+                        source: io,
+                    },
+                    None => self.damaged("record cut short"),
+                })),
             }
-            Some(c.record().ok_or_else(|| self.damaged("record cut short")))
         })
+    }
+}
+
+/// Sequential reads of a file from an offset, by positioned reads (the file handle is shared
+/// with lookups, so its cursor is left alone).
+struct ReadAt<'a> {
+    file: &'a File,
+    at: u64,
+}
+
+impl std::io::Read for ReadAt<'_> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = std::os::unix::fs::FileExt::read_at(self.file, buf, self.at)?;
+        self.at += n as u64;
+        Ok(n)
     }
 }
 
@@ -509,9 +595,15 @@ impl StateWriter {
 /// element has no committed state (a created version 1, which replaces nothing).
 #[derive(Debug, Clone, Copy)]
 struct Staged {
-    start: usize,
-    end: usize,
+    start: u32,
+    len: u32,
     if_absent: bool,
+}
+
+impl Staged {
+    fn range(self) -> std::ops::Range<usize> {
+        self.start as usize..self.start as usize + self.len as usize
+    }
 }
 
 /// The changes one ingest makes to the element state, staged until [`ElementStateTx::prepare`].
@@ -556,7 +648,8 @@ impl ElementStateTx {
             committed,
             base: ElementState::open_generation(prefix, committed)?,
             base_is_temp: false,
-            arena: Vec::new(),
+            // Reserved whole: growing by doubling would copy it and overshoot the bound.
+            arena: Vec::with_capacity(spill_bytes.saturating_add(1 << 16).min(1 << 31)),
             staged: foldhash::HashMap::default(),
             spill_bytes: spill_bytes.max(1),
             temp_seq: 0,
@@ -571,15 +664,19 @@ impl ElementStateTx {
         PathBuf::from(s)
     }
 
-    /// The encoded row of an element, staged or committed.
-    fn body(&self, key: Key) -> Result<Option<&[u8]>, ElementStateError> {
+    /// Finds an element's encoded row, staged or committed, and hands it to `f`.
+    fn find<R>(
+        &self,
+        key: Key,
+        mut f: impl FnMut(&[u8]) -> R,
+    ) -> Result<Option<R>, ElementStateError> {
         match self.staged.get(&key) {
-            Some(s) if !s.if_absent => Ok(self.arena.get(s.start..s.end)),
-            Some(s) => match self.base.body(key)? {
-                Some(b) => Ok(Some(b)),
-                None => Ok(self.arena.get(s.start..s.end)),
+            Some(s) if !s.if_absent => Ok(self.arena.get(s.range()).map(f)),
+            Some(s) => match self.base.find(key, &mut f)? {
+                Some(r) => Ok(Some(r)),
+                None => Ok(self.arena.get(s.range()).map(f)),
             },
-            None => self.base.body(key),
+            None => self.base.find(key, f),
         }
     }
 
@@ -588,13 +685,11 @@ impl ElementStateTx {
     /// # Errors
     /// When a state file is damaged.
     pub fn get(&self, t: ElementType, id: i64) -> Result<Option<Row>, ElementStateError> {
-        match self.body(key(t, id))? {
-            Some(b) => decode(b)
-                .map(Some)
-                .ok_or_else(|| ElementStateError::Damaged {
-                    path: self.base.path.clone(),
-                    message: "row unreadable".to_owned(),
-                }),
+        match self.find(key(t, id), decode)? {
+            Some(row) => row.map(Some).ok_or_else(|| ElementStateError::Damaged {
+                path: self.base.path.clone(),
+                message: "row unreadable".to_owned(),
+            }),
             None => Ok(None),
         }
     }
@@ -604,7 +699,7 @@ impl ElementStateTx {
     /// # Errors
     /// When a state file is damaged.
     pub fn contains(&self, t: ElementType, id: i64) -> Result<bool, ElementStateError> {
-        Ok(self.body(key(t, id))?.is_some())
+        Ok(self.find(key(t, id), |_| ())?.is_some())
     }
 
     /// Stages an element's state. With `replace`, it replaces any earlier state (the caller
@@ -627,11 +722,20 @@ impl ElementStateTx {
         self.changed = true;
         let start = self.arena.len();
         encode(row, &mut self.arena);
+        let (Ok(start), Ok(len)) = (
+            u32::try_from(start),
+            u32::try_from(self.arena.len() - start),
+        ) else {
+            return Err(ElementStateError::Damaged {
+                path: self.prefix.clone(),
+                message: format!("row of {key:?} too large to stage"),
+            });
+        };
         self.staged.insert(
             key,
             Staged {
                 start,
-                end: self.arena.len(),
+                len,
                 if_absent: !replace,
             },
         );
@@ -643,9 +747,9 @@ impl ElementStateTx {
 
     /// Merges the base with the staged rows into `out`.
     fn merge_into(&mut self, out: &mut StateWriter) -> Result<(), ElementStateError> {
-        let mut staged: Vec<(Key, Staged)> = self.staged.drain().collect();
+        let mut staged: Vec<(Key, Staged)> = std::mem::take(&mut self.staged).into_iter().collect();
         staged.sort_unstable_by_key(|s| s.0);
-        let mut base = self.base.records_from(0).peekable();
+        let mut base = self.base.sequential(0).peekable();
         for (key, s) in staged {
             let mut base_has = false;
             while let Some(r) = base.next_if(|r| r.as_ref().map_or(true, |(k, _)| *k <= key)) {
@@ -653,19 +757,19 @@ impl ElementStateTx {
                 if k == key {
                     base_has = true;
                     if s.if_absent {
-                        out.push(k, body)?;
+                        out.push(k, &body)?;
                     }
                 } else {
-                    out.push(k, body)?;
+                    out.push(k, &body)?;
                 }
             }
             if !(base_has && s.if_absent) {
-                out.push(key, self.arena.get(s.start..s.end).unwrap_or(&[]))?;
+                out.push(key, self.arena.get(s.range()).unwrap_or(&[]))?;
             }
         }
         for r in base {
             let (k, body) = r?;
-            out.push(k, body)?;
+            out.push(k, &body)?;
         }
         self.arena.clear();
         Ok(())
@@ -682,8 +786,7 @@ impl ElementStateTx {
             let _ = std::fs::remove_file(&old.path);
         }
         self.base_is_temp = true;
-        self.arena.shrink_to(self.spill_bytes.min(1 << 20));
-        self.staged.shrink_to(1 << 16);
+
         Ok(())
     }
 

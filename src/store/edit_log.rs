@@ -122,7 +122,7 @@ pub struct BlockBuilder {
     max_ts: i64,
     last: Last,
     /// Mappers whose name is already in this block.
-    named: std::collections::HashSet<i64>,
+    named: foldhash::HashSet<i64>,
 }
 
 pub(crate) fn put_varint(out: &mut Vec<u8>, mut v: u64) {
