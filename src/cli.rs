@@ -409,6 +409,11 @@ pub struct ReportArgs {
     /// Text for the report's "generated at" line (default: now, UTC).
     #[arg(long)]
     pub generated_at: Option<String>,
+    /// Link the report's front page to a tile viewer of the same week at this address, relative
+    /// to the report folder or absolute (e.g. tiles/viewer.html, after `hexvigil tiles --out
+    /// REPORT/tiles`).
+    #[arg(long, value_name = "HREF")]
+    pub tiles_viewer: Option<String>,
     /// Score changesets with this model file (from `fit`) instead of the default scorecard.
     #[arg(long, conflicts_with = "scores")]
     pub model: Option<PathBuf>,
@@ -483,6 +488,7 @@ impl ReportArgs {
                 .generated_at
                 .clone()
                 .unwrap_or_else(|| chrono::Utc::now().format("%Y-%m-%d %H:%M UTC").to_string()),
+            tiles_viewer: self.tiles_viewer.clone(),
             ..ReportOptions::default()
         };
         o.detect.fdr = self.fdr;
@@ -1060,6 +1066,8 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 // Fixed so the demo's report is the same on every run.
                 generated_at: "demo run (fictional data)".to_owned(),
                 style,
+                // The tiles below are written into the report folder.
+                tiles_viewer: Some("tiles/viewer.html".to_owned()),
                 ..ReportOptions::default()
             };
             let report_dir = out.join("report");

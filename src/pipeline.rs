@@ -69,6 +69,9 @@ pub struct ReportOptions {
     pub generated_at: String,
     pub changeset_url: String,
     pub user_url: String,
+    /// A tile viewer of the same week for the front page to link to (see
+    /// [`crate::report::PageContext::tiles_viewer`]).
+    pub tiles_viewer: Option<String>,
 }
 
 impl Default for ReportOptions {
@@ -87,6 +90,7 @@ impl Default for ReportOptions {
             generated_at: String::new(),
             changeset_url: "https://www.openstreetmap.org/changeset/".to_owned(),
             user_url: "https://www.openstreetmap.org/user/".to_owned(),
+            tiles_viewer: None,
         }
     }
 }
@@ -986,6 +990,7 @@ pub fn write(
         flag_threshold: opts.flag_threshold,
         changeset_url: &opts.changeset_url,
         user_url: &opts.user_url,
+        tiles_viewer: opts.tiles_viewer.as_deref(),
     };
     crate::report::write_report(out, &analysis.summary, &reports, &ctx)?;
     Ok(())

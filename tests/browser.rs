@@ -388,6 +388,7 @@ fn ctx() -> PageContext<'static> {
         flag_threshold: 0.5,
         changeset_url: "https://www.openstreetmap.org/changeset/",
         user_url: "https://www.openstreetmap.org/user/",
+        tiles_viewer: None,
     }
 }
 

@@ -292,6 +292,12 @@ fn demo_writes_an_image_per_measure_and_a_tile_pyramid() {
     let z14 = std::fs::read_dir(tiles.join("14")).unwrap().count();
     assert!(z14 > 5, "zoom 14 columns: {z14}");
     assert!(tiles.join("viewer.html").is_file());
+    // The front page links the viewer written beside it.
+    let index = std::fs::read_to_string(report.join("index.html")).unwrap();
+    assert!(
+        index.contains("<a href=\"tiles/viewer.html\">"),
+        "index links the tile viewer"
+    );
 }
 
 #[test]

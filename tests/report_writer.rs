@@ -30,6 +30,7 @@ fn ctx() -> PageContext<'static> {
         flag_threshold: 0.8,
         changeset_url: "https://www.openstreetmap.org/changeset/",
         user_url: "https://www.openstreetmap.org/user/",
+        tiles_viewer: None,
     }
 }
 
@@ -330,6 +331,29 @@ fn html_files(out: &Path, regions: &[RegionReport]) -> Vec<(String, String)> {
 
 fn read(p: &Path) -> String {
     fs::read_to_string(p).unwrap_or_else(|e| panic!("{}: {e}", p.display()))
+}
+
+/// The front page links a tile viewer only when one is named, with the address escaped.
+#[test]
+fn the_front_page_links_a_tile_viewer_when_given() {
+    let tmp = tempfile::tempdir().expect("tempdir");
+    let (summary, regions) = write_sample(tmp.path());
+    assert!(!read(&tmp.path().join("index.html")).contains("tiles-link"));
+    let viewer = "tiles/viewer.html?a=1&b=\"2\"";
+    let with = PageContext {
+        tiles_viewer: Some(viewer),
+        ..ctx()
+    };
+    write_report(tmp.path(), &summary, &regions, &with).expect("report written");
+    let html = read(&tmp.path().join("index.html"));
+    let hrefs: Vec<&str> = attribute_values(&html, "href")
+        .into_iter()
+        .map(|(_, h)| h)
+        .collect();
+    assert!(
+        hrefs.contains(&"tiles/viewer.html?a=1&amp;b=&quot;2&quot;"),
+        "{hrefs:?}"
+    );
 }
 
 #[test]

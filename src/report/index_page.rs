@@ -146,6 +146,14 @@ pub(super) fn render(
         week = week_heading(&summary.week),
     );
     page::cautions_brief(&mut out);
+    if let Some(href) = ctx.tiles_viewer {
+        let _ = writeln!(
+            out,
+            "<p class=\"tiles-link\"><a href=\"{}\">Explore this week's cells on a zoomable \
+             map</a> (all regions, one measure; pan and zoom in the browser).</p>",
+            escape_html(href),
+        );
+    }
     out.push_str("<section aria-label=\"Regions\" class=\"cards\">\n");
     for (r, slug) in regions.iter().zip(slugs) {
         card(&mut out, r, slug);

@@ -89,6 +89,9 @@ pub struct PageContext<'a> {
     /// Prefix of a mapper link; the percent-encoded display name is appended
     /// (e.g. `https://www.openstreetmap.org/user/`).
     pub user_url: &'a str,
+    /// Address of a tile viewer of the same week that the front page links to (relative to the
+    /// report folder, e.g. `tiles/viewer.html`, or absolute), if one is published with it.
+    pub tiles_viewer: Option<&'a str>,
 }
 
 /// Gives each region a distinct, safe folder name.
