@@ -563,7 +563,11 @@ pub(crate) fn sync_dir(path: &Path) -> std::io::Result<()> {
 /// # Errors
 /// When the folder cannot be listed or a file cannot be removed.
 pub fn remove_other_generations(prefix: &Path, keep: u64) -> Result<(), NodeIndexError> {
-    let keep_path = generation_path(prefix, keep);
+    // Compared by file name: a bare prefix (`region.db.nodes`, a database in the working
+    // folder) lists its folder as `.`, whose entries read `./region.db.nodes.1`.
+    let keep_name = generation_path(prefix, keep)
+        .file_name()
+        .map(std::ffi::OsStr::to_owned);
     let dir = prefix
         .parent()
         .filter(|p| !p.as_os_str().is_empty())
@@ -585,8 +589,8 @@ pub fn remove_other_generations(prefix: &Path, keep: u64) -> Result<(), NodeInde
         if generation.is_empty() || !generation.bytes().all(|b| b.is_ascii_digit()) {
             continue;
         }
-        let path = entry.path();
-        if path != keep_path {
+        if Some(entry.file_name()) != keep_name {
+            let path = entry.path();
             std::fs::remove_file(&path).map_err(io_err(&path))?;
         }
     }

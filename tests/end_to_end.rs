@@ -410,3 +410,37 @@ fn tile_viewer_opens_in_a_browser_from_disk() {
     assert!(dom.contains("OpenStreetMap contributors"));
     assert!(dom.contains("not verdicts"));
 }
+
+/// A database named without a folder (`--db state.db`, in the working folder) keeps its
+/// node-location index and element state across ingests: the files of the committed generation
+/// are recognised by name, not by a path spelt differently (`./state.db.nodes.1`), and only
+/// the previous generation's files are removed.
+#[test]
+fn a_database_in_the_working_folder_keeps_its_files_across_ingests() {
+    let work = tempfile::tempdir().unwrap();
+    let diff = |n: i64| {
+        format!(
+            r#"<osmChange version="0.6"><create><node id="{n}" version="1" changeset="{n}" uid="1" user="a" timestamp="2026-11-16T10:00:00Z" lat="1" lon="1"><tag k="amenity" v="bench"/></node></create></osmChange>"#
+        )
+    };
+    for n in 1..=3 {
+        let f = work.path().join(format!("d{n}.osc"));
+        std::fs::write(&f, diff(n)).unwrap();
+        run_ok(
+            bin()
+                .current_dir(work.path())
+                .args(["ingest", "--db", "state.db"])
+                .arg(format!("d{n}.osc")),
+        );
+    }
+    let mut files: Vec<String> = std::fs::read_dir(work.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().into_string().unwrap())
+        .filter(|n| n.starts_with("state.db."))
+        .collect();
+    files.sort();
+    assert_eq!(files, ["state.db.elements.3", "state.db.nodes.3"]);
+    let store = hexvigil::store::Store::open(&work.path().join("state.db")).unwrap();
+    assert_eq!(store.node_index().unwrap().len(), 3);
+    assert_eq!(store.element_state().unwrap().len(), 3);
+}
