@@ -261,7 +261,9 @@ impl Store {
         let tx = Transaction::new_unchecked(&self.conn, rusqlite::TransactionBehavior::Immediate)
             .map_err(err)?;
         if !Self::has_table(&tx, "elements").map_err(err)? {
-            return Ok(());
+            tx.execute("UPDATE meta SET value = '3' WHERE key = 'schema'", [])
+                .map_err(err)?;
+            return tx.commit().map_err(err);
         }
         let prefix = self.element_state_prefix();
         node_index::remove_other_generations(&prefix, 0)?;
