@@ -60,7 +60,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let build = t.elapsed().as_secs_f64();
     let generation = g1.generation();
     g1.committed();
-    let path = hexvigil::node_index::generation_path(&prefix, generation);
+    let path = hexvigil::generations::path(&prefix, generation);
     let size = std::fs::metadata(&path)?.len();
     println!("nodes: {n}");
     println!("build_s: {build:.2}");

@@ -11,11 +11,9 @@
 //! merging them with the committed one in key order.
 //!
 //! ## Generations and crash consistency
-//! The same protocol as the node-location index ([`crate::node_index`]): the state of database
-//! `region.db` is the file `region.db.elements.<g>`, the generation `g` is recorded in the
-//! database's `meta` table, an ingest writes `g+1` (temporary file, synced, renamed, directory
-//! synced) before the SQLite commit that names it, and files of other generations are leftovers
-//! that the next ingest removes. Generation 0 is the empty state and has no file.
+//! The state of database `region.db` is the file `region.db.elements.<g>`, replaced whole by
+//! each ingest that changes it, by the protocol of [`crate::generations`] (the node-location
+//! index's too). Generation 0 is the empty state and has no file.
 //!
 //! ## File format (version 1)
 //! `HXVELEM1` and 8 zero bytes; blocks of records sorted by (element type, id), each record
@@ -30,8 +28,8 @@ use std::fs::File;
 use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 
+use crate::generations::{self, Prepared};
 use crate::model::ElementType;
-use crate::node_index::generation_path;
 use crate::store::edit_log::{put_bytes, put_signed, put_varint, unzigzag};
 
 /// A block is closed once it holds this many bytes (a lookup scans at most one block).
@@ -58,6 +56,15 @@ pub enum ElementStateError {
     },
     #[error("{path}: element state is damaged: {message}")]
     Damaged { path: PathBuf, message: String },
+}
+
+impl From<generations::GenerationError> for ElementStateError {
+    fn from(e: generations::GenerationError) -> Self {
+        Self::Io {
+            path: e.path,
+            source: e.source,
+        }
+    }
 }
 
 fn io_err(path: &Path) -> impl Fn(std::io::Error) -> ElementStateError + '_ {
@@ -278,7 +285,7 @@ impl ElementState {
         if generation == 0 {
             return Ok(Self::empty());
         }
-        Self::open(&generation_path(prefix, generation))
+        Self::open(&generations::path(prefix, generation))
     }
 
     /// Opens a state file and reads its directory.
@@ -659,9 +666,7 @@ impl ElementStateTx {
 
     fn temp_path(&mut self, what: &str) -> PathBuf {
         self.temp_seq += 1;
-        let mut s = generation_path(&self.prefix, self.committed + 1).into_os_string();
-        s.push(format!(".{what}{}.tmp", self.temp_seq));
-        PathBuf::from(s)
+        generations::temp_path(&self.prefix, self.committed, what, self.temp_seq)
     }
 
     /// Finds an element's encoded row, staged or committed, and hands it to `f`.
@@ -792,27 +797,23 @@ impl ElementStateTx {
 
     /// Writes the next generation's file (complete, synced and renamed into place) and returns
     /// it, or `None` when nothing was staged. The caller records the generation in its database
-    /// transaction and then calls [`PreparedState::committed`].
+    /// transaction and then calls [`Prepared::committed`].
     ///
     /// # Errors
     /// When writing the new file fails; the committed generation is untouched.
-    pub fn prepare(mut self) -> Result<Option<PreparedState>, ElementStateError> {
+    pub fn prepare(mut self) -> Result<Option<Prepared>, ElementStateError> {
         if !self.changed {
             return Ok(None);
         }
-        let generation = self.committed + 1;
-        let final_path = generation_path(&self.prefix, generation);
         let temp = self.temp_path("new");
         let mut w = StateWriter::create(&temp)?;
         self.merge_into(&mut w)?;
         w.finish()?;
-        std::fs::rename(&temp, &final_path).map_err(io_err(&final_path))?;
-        crate::node_index::sync_dir(&final_path).map_err(io_err(&final_path))?;
-        Ok(Some(PreparedState {
-            prefix: self.prefix.clone(),
-            previous: self.committed,
-            generation,
-        }))
+        Ok(Some(generations::publish(
+            &temp,
+            &self.prefix,
+            self.committed,
+        )?))
     }
 }
 
@@ -821,30 +822,6 @@ impl Drop for ElementStateTx {
         // Temporary files only; the committed generation is never touched.
         if self.base_is_temp {
             let _ = std::fs::remove_file(&self.base.path);
-        }
-    }
-}
-
-/// A new generation written and renamed into place, waiting for the database commit.
-#[derive(Debug)]
-pub struct PreparedState {
-    prefix: PathBuf,
-    previous: u64,
-    generation: u64,
-}
-
-impl PreparedState {
-    /// The generation to record in the database transaction.
-    #[must_use]
-    pub const fn generation(&self) -> u64 {
-        self.generation
-    }
-
-    /// After the database commit: removes the previous generation's file (best effort; a
-    /// leftover is removed by the next ingest).
-    pub fn committed(self) {
-        if self.previous > 0 {
-            let _ = std::fs::remove_file(generation_path(&self.prefix, self.previous));
         }
     }
 }
@@ -1006,7 +983,7 @@ mod tests {
             .unwrap();
         }
         let g = tx.prepare().unwrap().unwrap();
-        let path = generation_path(&prefix, g.generation());
+        let path = generations::path(&prefix, g.generation());
         let before = std::fs::read(&path).unwrap();
         let mut tx = ElementStateTx::with_spill_bytes(&prefix, 1, 1_000).unwrap();
         for id in 0..500 {

@@ -17,6 +17,7 @@ pub mod evaluate;
 pub mod export;
 pub mod features;
 pub mod fit;
+pub mod generations;
 pub mod geojson_io;
 pub mod ingest;
 pub mod labels;

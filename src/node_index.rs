@@ -11,14 +11,10 @@
 //! the caching.
 //!
 //! ## Generations and crash consistency
-//! The index of database `region.db` is the file `region.db.nodes.<g>`, where the generation `g`
-//! is recorded in the database's `meta` table. An ingest never changes that file: it stages the
-//! new positions (in memory, spilling sorted runs to disk), merges them with the committed index
-//! into `region.db.nodes.<g+1>` (written as a temporary file, synced, renamed, directory synced)
-//! and only then records `g+1` inside its SQLite transaction. So if the ingest fails or is killed
-//! before the SQLite commit, the database still names `g`, whose file is untouched; after the
-//! commit the database names `g+1`, whose file is complete. Files of other generations are
-//! leftovers and are removed by the next ingest, which holds the database's write lock.
+//! The index of database `region.db` is the file `region.db.nodes.<g>`, replaced whole by each
+//! ingest that changes it, by the protocol of [`crate::generations`]: an ingest stages the new
+//! positions (in memory, spilling sorted runs to disk) and merges them with the committed index
+//! into the next generation before its SQLite commit names it.
 
 use std::cell::RefCell;
 use std::fs::File;
@@ -26,6 +22,7 @@ use std::io::{BufReader, BufWriter, Read, Seek, SeekFrom, Write};
 use std::os::unix::fs::FileExt;
 use std::path::{Path, PathBuf};
 
+use crate::generations::{self, Prepared};
 use crate::model::Coord;
 
 /// Most entries in one block; a block is then at most 4 KiB, one page.
@@ -51,6 +48,15 @@ pub enum NodeIndexError {
     },
     #[error("{path}: node-location index is damaged: {message}")]
     Damaged { path: PathBuf, message: String },
+}
+
+impl From<generations::GenerationError> for NodeIndexError {
+    fn from(e: generations::GenerationError) -> Self {
+        Self::Io {
+            path: e.path,
+            source: e.source,
+        }
+    }
 }
 
 fn io_err(path: &Path) -> impl Fn(std::io::Error) -> NodeIndexError + '_ {
@@ -134,14 +140,6 @@ impl NodeEntry {
     }
 }
 
-/// The file holding generation `generation` of the index whose files start with `prefix`.
-#[must_use]
-pub fn generation_path(prefix: &Path, generation: u64) -> PathBuf {
-    let mut s = prefix.as_os_str().to_owned();
-    s.push(format!(".{generation}"));
-    PathBuf::from(s)
-}
-
 /// The file-name prefix of the index belonging to a database file (`region.db` →
 /// `region.db.nodes`).
 #[must_use]
@@ -219,7 +217,7 @@ impl NodeIndex {
         if generation == 0 {
             return Ok(Self::empty());
         }
-        Self::open(&generation_path(prefix, generation))
+        Self::open(&generations::path(prefix, generation))
     }
 
     /// Opens an index file and reads its directory.
@@ -548,55 +546,6 @@ fn merge_into(mut sources: Vec<Source<'_>>, out: &mut IndexWriter) -> Result<(),
     }
 }
 
-/// Syncs the folder holding `path`, so that a rename into it survives a power cut.
-pub(crate) fn sync_dir(path: &Path) -> std::io::Result<()> {
-    let dir = path
-        .parent()
-        .filter(|p| !p.as_os_str().is_empty())
-        .unwrap_or(Path::new("."));
-    File::open(dir).and_then(|d| d.sync_all())
-}
-
-/// Removes every file of the index at `prefix` except generation `keep` (leftovers of
-/// interrupted or superseded ingests). Call only while holding the database's write lock.
-///
-/// # Errors
-/// When the folder cannot be listed or a file cannot be removed.
-pub fn remove_other_generations(prefix: &Path, keep: u64) -> Result<(), NodeIndexError> {
-    // Compared by file name: a bare prefix (`region.db.nodes`, a database in the working
-    // folder) lists its folder as `.`, whose entries read `./region.db.nodes.1`.
-    let keep_name = generation_path(prefix, keep)
-        .file_name()
-        .map(std::ffi::OsStr::to_owned);
-    let dir = prefix
-        .parent()
-        .filter(|p| !p.as_os_str().is_empty())
-        .unwrap_or(Path::new("."));
-    let Some(stem) = prefix
-        .file_name()
-        .map(|n| format!("{}.", n.to_string_lossy()))
-    else {
-        return Ok(());
-    };
-    for entry in std::fs::read_dir(dir).map_err(io_err(dir))? {
-        let entry = entry.map_err(io_err(dir))?;
-        let name = entry.file_name().to_string_lossy().into_owned();
-        let Some(rest) = name.strip_prefix(&stem) else {
-            continue;
-        };
-        // Only our own names: a generation number, optionally followed by a temporary suffix.
-        let generation = rest.split('.').next().unwrap_or("");
-        if generation.is_empty() || !generation.bytes().all(|b| b.is_ascii_digit()) {
-            continue;
-        }
-        if Some(entry.file_name()) != keep_name {
-            let path = entry.path();
-            std::fs::remove_file(&path).map_err(io_err(&path))?;
-        }
-    }
-    Ok(())
-}
-
 /// Entries of `NodeIndexTx::tail` per fence post.
 const FENCE: usize = 128;
 
@@ -670,9 +619,7 @@ impl NodeIndexTx {
 
     fn temp_path(&mut self, what: &str) -> PathBuf {
         self.temp_seq += 1;
-        let mut s = generation_path(&self.prefix, self.committed + 1).into_os_string();
-        s.push(format!(".{what}{}.tmp", self.temp_seq));
-        PathBuf::from(s)
+        generations::temp_path(&self.prefix, self.committed, what, self.temp_seq)
     }
 
     /// Records a node's position at a version. For each node the highest version staged or
@@ -791,19 +738,17 @@ impl NodeIndexTx {
 
     /// Writes the next generation's file (complete, synced and renamed into place) and returns
     /// it, or `None` when nothing was staged. The caller records the generation in its database
-    /// transaction and then calls [`PreparedIndex::committed`].
+    /// transaction and then calls [`Prepared::committed`].
     ///
     /// # Errors
     /// When writing the new file fails; the committed generation is untouched.
-    pub fn prepare(mut self) -> Result<Option<PreparedIndex>, NodeIndexError> {
+    pub fn prepare(mut self) -> Result<Option<Prepared>, NodeIndexError> {
         if !self.changed {
             return Ok(None);
         }
         let mut overlay: Vec<(i64, NodeEntry)> =
             std::mem::take(&mut self.overlay).into_iter().collect();
         overlay.sort_unstable_by_key(|e| e.0);
-        let generation = self.committed + 1;
-        let final_path = generation_path(&self.prefix, generation);
         let temp = self.temp_path("new");
         let mut w = IndexWriter::create(&temp)?;
         let mut sources: Vec<Source<'_>> = vec![Box::new(self.base.iter()?)];
@@ -815,13 +760,11 @@ impl NodeIndexTx {
         sources.push(Box::new(overlay.into_iter().map(Ok)));
         merge_into(sources, &mut w)?;
         w.finish()?;
-        std::fs::rename(&temp, &final_path).map_err(io_err(&final_path))?;
-        sync_dir(&final_path).map_err(io_err(&final_path))?;
-        Ok(Some(PreparedIndex {
-            prefix: self.prefix.clone(),
-            previous: self.committed,
-            generation,
-        }))
+        Ok(Some(generations::publish(
+            &temp,
+            &self.prefix,
+            self.committed,
+        )?))
     }
 }
 
@@ -833,30 +776,6 @@ impl Drop for NodeIndexTx {
         }
         if self.base_is_temp {
             let _ = std::fs::remove_file(&self.base.path);
-        }
-    }
-}
-
-/// A new generation written and renamed into place, waiting for the database commit.
-#[derive(Debug)]
-pub struct PreparedIndex {
-    prefix: PathBuf,
-    previous: u64,
-    generation: u64,
-}
-
-impl PreparedIndex {
-    /// The generation to record in the database transaction.
-    #[must_use]
-    pub const fn generation(&self) -> u64 {
-        self.generation
-    }
-
-    /// After the database commit: removes the previous generation's file (best effort; a
-    /// leftover is removed by the next ingest).
-    pub fn committed(self) {
-        if self.previous > 0 {
-            let _ = std::fs::remove_file(generation_path(&self.prefix, self.previous));
         }
     }
 }
@@ -954,7 +873,7 @@ mod tests {
         }
         let g2 = commit(tx);
         assert!(
-            !generation_path(&prefix, g1).exists(),
+            !generations::path(&prefix, g1).exists(),
             "old generation removed"
         );
         let idx = NodeIndex::open_generation(&prefix, g2).unwrap();
@@ -1024,18 +943,21 @@ mod tests {
         let mut tx = NodeIndexTx::begin(&prefix, g).unwrap();
         tx.stage(6, entry(1, 1, 1)).unwrap();
         let stale = tx.prepare().unwrap().unwrap();
-        assert!(generation_path(&prefix, stale.generation()).exists());
+        assert!(generations::path(&prefix, stale.generation()).exists());
         let idx = NodeIndex::open_generation(&prefix, g).unwrap();
         assert_eq!(idx.get(5).unwrap(), Some(entry(1, 2, 1)));
         assert_eq!(idx.get(6).unwrap(), None);
-        remove_other_generations(&prefix, g).unwrap();
+        generations::remove_others(&prefix, g).unwrap();
         let left: Vec<_> = std::fs::read_dir(dir.path())
             .unwrap()
             .map(|e| e.unwrap().file_name())
             .collect();
         assert_eq!(
             left,
-            vec![generation_path(&prefix, g).file_name().unwrap().to_owned()]
+            vec![generations::path(&prefix, g)
+                .file_name()
+                .unwrap()
+                .to_owned()]
         );
     }
 
@@ -1048,7 +970,7 @@ mod tests {
             tx.stage(i * 7, entry(i, -i, 1)).unwrap();
         }
         let g = commit(tx);
-        let path = generation_path(&prefix, g);
+        let path = generations::path(&prefix, g);
         let bytes = std::fs::read(&path).unwrap();
         std::fs::write(&path, &bytes[..bytes.len() - 5]).unwrap();
         assert!(matches!(

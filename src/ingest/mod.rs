@@ -537,11 +537,10 @@ pub fn ingest_extended(
     let tx = store.begin()?;
     let committed = tx.node_generation()?;
     // The write lock is held: no other ingest writes index files now.
-    crate::node_index::remove_other_generations(&prefix, committed).map_err(StoreError::from)?;
+    crate::generations::remove_others(&prefix, committed).map_err(StoreError::from)?;
     let mut nodes = NodeIndexTx::begin(&prefix, committed).map_err(StoreError::from)?;
     let state_committed = tx.elements_generation()?;
-    crate::node_index::remove_other_generations(&state_prefix, state_committed)
-        .map_err(StoreError::from)?;
+    crate::generations::remove_others(&state_prefix, state_committed).map_err(StoreError::from)?;
     let mut state =
         ElementStateTx::begin(&state_prefix, state_committed).map_err(StoreError::from)?;
     let mut todo = Vec::new();

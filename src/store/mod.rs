@@ -54,6 +54,8 @@ pub enum StoreError {
     NodeIndex(#[from] NodeIndexError),
     #[error(transparent)]
     ElementState(#[from] ElementStateError),
+    #[error(transparent)]
+    Generation(#[from] crate::generations::GenerationError),
 }
 
 /// The `meta` key holding the committed node-index generation.
@@ -266,7 +268,7 @@ impl Store {
             return tx.commit().map_err(err);
         }
         let prefix = self.element_state_prefix();
-        node_index::remove_other_generations(&prefix, 0)?;
+        crate::generations::remove_others(&prefix, 0)?;
         let mut state = ElementStateTx::begin(&prefix, 0)?;
         {
             let mut st = tx
@@ -470,7 +472,7 @@ impl Store {
         let prepared = nodes.prepare()?;
         let generation = prepared
             .as_ref()
-            .map_or(0, node_index::PreparedIndex::generation);
+            .map_or(0, crate::generations::Prepared::generation);
         tx.execute(
             "INSERT INTO meta(key, value) VALUES(?1, ?2)",
             params![NODES_GENERATION, generation.to_string()],
