@@ -30,7 +30,7 @@ use std::path::{Path, PathBuf};
 
 use crate::generations::{self, Prepared};
 use crate::model::ElementType;
-use crate::store::edit_log::{put_bytes, put_signed, put_varint, unzigzag};
+use crate::store::edit_log::{get_varint, put_bytes, put_signed, put_varint, unzigzag};
 
 /// A block is closed once it holds this many bytes (a lookup scans at most one block).
 pub const BLOCK_BYTES: usize = 2048;
@@ -151,15 +151,7 @@ impl<'a> Cursor<'a> {
     }
 
     fn varint(&mut self) -> Option<u64> {
-        let mut v = 0u64;
-        for shift in (0..64).step_by(7) {
-            let b = self.byte()?;
-            v |= u64::from(b & 0x7F) << shift;
-            if b < 0x80 {
-                return Some(v);
-            }
-        }
-        None
+        get_varint(self.data, &mut self.at)
     }
 
     fn signed(&mut self) -> Option<i64> {

@@ -133,6 +133,22 @@ pub(crate) fn put_varint(out: &mut Vec<u8>, mut v: u64) {
     out.push(v as u8);
 }
 
+/// The varint at `*at` (Protocol Buffers' base-128 encoding, least significant group first),
+/// moving `*at` past it; `None` when the data ends inside it or it runs past 64 bits.
+#[inline]
+pub(crate) fn get_varint(data: &[u8], at: &mut usize) -> Option<u64> {
+    let mut v = 0u64;
+    for shift in (0..64).step_by(7) {
+        let b = *data.get(*at)?;
+        *at += 1;
+        v |= u64::from(b & 0x7F) << shift;
+        if b < 0x80 {
+            return Some(v);
+        }
+    }
+    None
+}
+
 pub(crate) const fn zigzag(v: i64) -> u64 {
     ((v << 1) ^ (v >> 63)) as u64
 }
@@ -259,15 +275,13 @@ impl<'a> Cursor<'a> {
     }
 
     fn varint(&mut self) -> Result<u64, DecodeError> {
-        let mut v = 0u64;
-        for shift in (0..64).step_by(7) {
-            let b = self.byte()?;
-            v |= u64::from(b & 0x7F) << shift;
-            if b < 0x80 {
-                return Ok(v);
+        get_varint(self.data, &mut self.at).ok_or_else(|| {
+            if self.at >= self.data.len() {
+                self.fail("ends inside an edit")
+            } else {
+                self.fail("varint longer than 64 bits")
             }
-        }
-        Err(self.fail("varint longer than 64 bits"))
+        })
     }
 
     fn signed(&mut self) -> Result<i64, DecodeError> {
