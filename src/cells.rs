@@ -143,7 +143,11 @@ pub struct CellCounter {
     resolution: Resolution,
     weeks: usize,
     cells: foldhash::HashMap<CellIndex, Vec<CellWeek>>,
-    rows: foldhash::HashMap<(usize, Option<CellIndex>, i64), ChangesetCellWeek>,
+    /// The changesets' shares, in the order first met, and where each key's share is: the map
+    /// holds small entries, and `finish` sorts the shares in place instead of copying them out
+    /// of a map (half the peak memory of a large window).
+    rows: Vec<ChangesetCellWeek>,
+    row_of: foldhash::HashMap<(usize, Option<CellIndex>, i64), usize>,
 }
 
 impl CellCounter {
@@ -154,7 +158,8 @@ impl CellCounter {
             resolution: res,
             weeks,
             cells: foldhash::HashMap::default(),
-            rows: foldhash::HashMap::default(),
+            rows: Vec::new(),
+            row_of: foldhash::HashMap::default(),
         }
     }
 
@@ -171,16 +176,21 @@ impl CellCounter {
             let Some(week) = *w else { continue };
             let cell = e.pos.and_then(|p| cell_of(p, self.resolution));
             let is_flagged = flagged(e.changeset);
-            let r = self
-                .rows
+            let rows = &mut self.rows;
+            let i = *self
+                .row_of
                 .entry((week, cell, e.changeset))
-                .or_insert_with(|| ChangesetCellWeek {
-                    week,
-                    cell,
-                    changeset: e.changeset,
-                    uid: e.uid,
-                    ..ChangesetCellWeek::default()
+                .or_insert_with(|| {
+                    rows.push(ChangesetCellWeek {
+                        week,
+                        cell,
+                        changeset: e.changeset,
+                        uid: e.uid,
+                        ..ChangesetCellWeek::default()
+                    });
+                    rows.len() - 1
                 });
+            let r = &mut rows[i];
             match e.op {
                 Op::Create => r.creates += 1,
                 Op::Modify => r.modifies += 1,
@@ -247,9 +257,10 @@ impl CellCounter {
     #[must_use]
     pub fn finish(mut self, score: &dyn Fn(i64) -> f64) -> (CellWeeks, Vec<ChangesetCellWeek>) {
         // Summed per changeset in a fixed order, so the result does not depend on batches.
-        let mut keys: Vec<&(usize, Option<CellIndex>, i64)> = self.rows.keys().collect();
-        keys.sort_unstable();
-        for r in keys.into_iter().filter_map(|k| self.rows.get(k)) {
+        drop(self.row_of);
+        let mut rows = self.rows;
+        rows.sort_unstable_by_key(|r| (r.week, r.cell, r.changeset));
+        for r in &rows {
             let Some(cw) = r
                 .cell
                 .and_then(|c| self.cells.get_mut(&c))
@@ -265,8 +276,6 @@ impl CellCounter {
             cw.score_max = cw.score_max.max(sc);
         }
         debug_assert!(Kind::ALL.iter().enumerate().all(|(i, k)| k.index() == i));
-        let mut rows: Vec<ChangesetCellWeek> = self.rows.into_values().collect();
-        rows.sort_unstable_by_key(|r| (r.week, r.cell, r.changeset));
         (
             CellWeeks {
                 resolution: self.resolution,
