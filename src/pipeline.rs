@@ -452,7 +452,11 @@ fn count_loaded(
     };
     let threshold = opts.flag_threshold;
     let mut counter = CellCounter::new(res, weeks);
-    let mut changesets: HashMap<i64, ScoredChangeset> = HashMap::new();
+    // Sized once (the first pass counted the window's changesets): growing by doubling held
+    // the old and the new table together, the largest share of the report's peak memory
+    // (BENCHMARKS.md, "Where the report's memory goes").
+    let mut changesets: HashMap<i64, ScoredChangeset> =
+        HashMap::with_capacity(times.changeset_last.len());
     let mut waiting: Vec<Edit> = Vec::new();
     let mut waiting_metas: HashMap<i64, ChangesetMeta> = HashMap::new();
     let bar = progress.steps(times.hourly.iter().sum(), "count");
