@@ -192,8 +192,11 @@ pub struct Counted {
     pub cell_weeks: CellWeeks,
     /// Each changeset's share of each cell-week, unplaced edits included (`cell: None`).
     pub changeset_cells: Vec<ChangesetCellWeek>,
-    /// Every changeset with an edit in the window.
+    /// The changesets listed in full (texts, reasons): those with an edit in the report week for
+    /// a report, every one of the window for an export.
     pub changesets: HashMap<i64, ScoredChangeset>,
+    /// The score of every changeset with an edit in the window.
+    pub scores: foldhash::HashMap<i64, f64>,
 }
 
 impl Counted {
@@ -452,11 +455,12 @@ fn count_loaded(
     };
     let threshold = opts.flag_threshold;
     let mut counter = CellCounter::new(res, weeks);
-    // Sized once (the first pass counted the window's changesets): growing by doubling held
-    // the old and the new table together, the largest share of the report's peak memory
-    // (BENCHMARKS.md, "Where the report's memory goes").
-    let mut changesets: HashMap<i64, ScoredChangeset> =
-        HashMap::with_capacity(times.changeset_last.len());
+    // Earlier weeks' changesets keep only their score: a full record each was the largest share
+    // of the report's peak memory (BENCHMARKS.md, "Where the report's memory goes"). The map
+    // is sized once from the first pass's count, not grown by doubling.
+    let mut scores: foldhash::HashMap<i64, f64> =
+        foldhash::HashMap::with_capacity_and_hasher(times.changeset_last.len(), Default::default());
+    let mut changesets: HashMap<i64, ScoredChangeset> = HashMap::new();
     let mut waiting: Vec<Edit> = Vec::new();
     let mut waiting_metas: HashMap<i64, ChangesetMeta> = HashMap::new();
     let bar = progress.steps(times.hourly.iter().sum(), "count");
@@ -480,29 +484,27 @@ fn count_loaded(
         let facts = edit_facts(&ready, &hist, first_edit, land, &existing, &opts.features);
         for f in changeset_features(&ready, &facts, &metas, &hist, first_edit) {
             let s = opts.scoring.score(&f);
+            scores.insert(f.id, s.score);
             let details = times
                 .changeset_last
                 .get(&f.id)
                 .is_some_and(|&t| t >= window.details_from);
-            let text = |t: String| if details { t } else { String::new() };
-            changesets.insert(
-                f.id,
-                ScoredChangeset {
-                    id: f.id,
-                    uid: f.uid,
-                    user: text(f.user),
-                    created_at: f.created_at,
-                    account_age_days: f.account_age_days,
-                    comment: text(f.comment),
-                    editor: text(f.editor),
-                    score: s.score,
-                    reasons: if details {
-                        s.reasons.into_iter().map(|r| r.1).collect()
-                    } else {
-                        Vec::new()
+            if details {
+                changesets.insert(
+                    f.id,
+                    ScoredChangeset {
+                        id: f.id,
+                        uid: f.uid,
+                        user: f.user,
+                        created_at: f.created_at,
+                        account_age_days: f.account_age_days,
+                        comment: f.comment,
+                        editor: f.editor,
+                        score: s.score,
+                        reasons: s.reasons.into_iter().map(|r| r.1).collect(),
                     },
-                },
-            );
+                );
+            }
         }
         let week_of: Vec<Option<usize>> = ready
             .iter()
@@ -511,17 +513,18 @@ fn count_loaded(
                 usize::try_from(w).ok().filter(|&w| w < weeks)
             })
             .collect();
-        let flagged = |cs: i64| changesets.get(&cs).is_some_and(|s| s.score >= threshold);
+        let flagged = |cs: i64| scores.get(&cs).is_some_and(|&s| s >= threshold);
         counter.add(&ready, &facts, &week_of, &flagged);
     }
     bar.finish();
     let (cell_weeks, changeset_cells) =
-        counter.finish(&|cs| changesets.get(&cs).map_or(0.0, |s| s.score));
+        counter.finish(&|cs| scores.get(&cs).copied().unwrap_or(0.0));
     Ok(Counted {
         first_week: window.first_week,
         cell_weeks,
         changeset_cells,
         changesets,
+        scores,
     })
 }
 
@@ -722,7 +725,7 @@ pub fn analyse_counted(
         for (t, (ids, _)) in trend.iter_mut().zip(&week_sets) {
             t.flagged_changesets = ids
                 .iter()
-                .filter(|id| changesets.get(id).is_some_and(|s| s.score >= threshold))
+                .filter(|id| counted.scores.get(id).is_some_and(|&s| s >= threshold))
                 .count() as u64;
         }
         #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]

@@ -1043,6 +1043,7 @@ pub fn read(
             cells,
         },
         changeset_cells,
+        scores: changesets.values().map(|c| (c.id, c.score)).collect(),
         changesets,
     })
 }
@@ -1171,7 +1172,7 @@ mod tests {
                 reasons,
             };
         let start = first_week.start_unix();
-        let changesets = [
+        let changesets: HashMap<i64, ScoredChangeset> = [
             scored(10, 1, start + 100, 0.125, Vec::new()),
             scored(
                 11,
@@ -1199,6 +1200,7 @@ mod tests {
                 cells,
             },
             changeset_cells: rows,
+            scores: changesets.values().map(|c| (c.id, c.score)).collect(),
             changesets,
         };
         (counted, crate::regions::everything())
