@@ -1068,6 +1068,9 @@ pub fn run(cli: Cli) -> Result<(), Failure> {
                 style,
                 // The tiles below are written into the report folder.
                 tiles_viewer: Some("tiles/viewer.html".to_owned()),
+                // Fictional changesets and mappers: no links to real ones of the same id or name.
+                changeset_url: String::new(),
+                user_url: String::new(),
                 ..ReportOptions::default()
             };
             let report_dir = out.join("report");

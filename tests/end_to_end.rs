@@ -292,6 +292,17 @@ fn demo_writes_an_image_per_measure_and_a_tile_pyramid() {
     let z14 = std::fs::read_dir(tiles.join("14")).unwrap().count();
     assert!(z14 > 5, "zoom 14 columns: {z14}");
     assert!(tiles.join("viewer.html").is_file());
+    // The demo's fictional changesets and mappers are not linked to real ones.
+    for r in summary["regions"].as_array().unwrap() {
+        let page =
+            std::fs::read_to_string(report.join(r["slug"].as_str().unwrap()).join("index.html"))
+                .unwrap();
+        assert!(
+            !page.contains("openstreetmap.org/changeset/"),
+            "no changeset links"
+        );
+        assert!(!page.contains("openstreetmap.org/user/"), "no mapper links");
+    }
     // The front page links the viewer written beside it.
     let index = std::fs::read_to_string(report.join("index.html")).unwrap();
     assert!(

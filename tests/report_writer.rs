@@ -356,6 +356,26 @@ fn the_front_page_links_a_tile_viewer_when_given() {
     );
 }
 
+/// Without link prefixes (the demo's fictional data), ids and names are plain text.
+#[test]
+fn empty_link_prefixes_give_plain_text() {
+    let tmp = tempfile::tempdir().expect("tempdir");
+    let (summary, regions) = write_sample(tmp.path());
+    let plain = PageContext {
+        changeset_url: "",
+        user_url: "",
+        ..ctx()
+    };
+    write_report(tmp.path(), &summary, &regions, &plain).expect("report written");
+    for (name, html) in html_files(tmp.path(), &regions) {
+        assert!(!html.contains("openstreetmap.org/changeset"), "{name}");
+        assert!(!html.contains("openstreetmap.org/user"), "{name}");
+        assert!(!html.contains("href=\"170001234\""), "{name}");
+    }
+    let page = read(&tmp.path().join(&regions[0].summary.slug).join("index.html"));
+    assert!(page.contains("170001234"), "the id is still shown");
+}
+
 #[test]
 fn writes_every_file() {
     let tmp = tempfile::tempdir().expect("tempdir");

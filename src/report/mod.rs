@@ -84,10 +84,12 @@ pub struct PageContext<'a> {
     /// Changeset score at or above which a changeset is flagged.
     pub flag_threshold: f64,
     /// Prefix of a changeset link; the id is appended
-    /// (e.g. `https://www.openstreetmap.org/changeset/`).
+    /// (e.g. `https://www.openstreetmap.org/changeset/`). Empty: ids are shown without links
+    /// (the demo's, which are fictional and must not point at real changesets).
     pub changeset_url: &'a str,
     /// Prefix of a mapper link; the percent-encoded display name is appended
-    /// (e.g. `https://www.openstreetmap.org/user/`).
+    /// (e.g. `https://www.openstreetmap.org/user/`). Empty: names are shown without links
+    /// (the demo's fictional mappers, whose names could belong to real accounts).
     pub user_url: &'a str,
     /// Address of a tile viewer of the same week that the front page links to (relative to the
     /// report folder, e.g. `tiles/viewer.html`, or absolute), if one is published with it.

@@ -125,6 +125,10 @@ fn user_link(out: &mut String, ctx: &PageContext<'_>, user: &str, uid: Option<i6
         }
         return;
     }
+    if ctx.user_url.is_empty() {
+        out.push_str(&escape_html(user));
+        return;
+    }
     let href = format!("{}{}", ctx.user_url, encode_path_segment(user));
     let _ = write!(
         out,
@@ -135,6 +139,10 @@ fn user_link(out: &mut String, ctx: &PageContext<'_>, user: &str, uid: Option<i6
 }
 
 fn changeset_link(out: &mut String, ctx: &PageContext<'_>, id: i64) {
+    if ctx.changeset_url.is_empty() {
+        let _ = write!(out, "{id}");
+        return;
+    }
     let href = format!("{}{id}", ctx.changeset_url);
     let _ = write!(out, "<a href=\"{}\">{id}</a>", escape_html(&href));
 }
