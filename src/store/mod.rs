@@ -497,24 +497,33 @@ impl Store {
         element_state::prefix_for(&self.path)
     }
 
+    /// Opens the committed generation of a file beside the database. An ingest that commits
+    /// between reading the generation and opening its file removes the file just read; reading
+    /// the generation again then names the new one.
+    fn open_committed<T, E: Into<StoreError>>(
+        &self,
+        key: &str,
+        open: impl Fn(u64) -> Result<T, E>,
+    ) -> Result<T, StoreError> {
+        let mut attempt = 0;
+        loop {
+            let generation = read_generation(&self.conn, key).map_err(|e| self.map_err(e))?;
+            match open(generation) {
+                Ok(t) => return Ok(t),
+                Err(e) if attempt >= 2 => return Err(e.into()),
+                Err(_) => attempt += 1,
+            }
+        }
+    }
+
     /// Opens the committed node-location index, the one API through which positions of nodes
     /// are read.
     ///
     /// # Errors
     /// On SQLite failure, or when the index file is missing or damaged.
     pub fn node_index(&self) -> Result<NodeIndex, StoreError> {
-        // An ingest that commits between reading the generation and opening its file removes
-        // the file just read; reading the generation again then names the new one.
-        let mut attempt = 0;
-        loop {
-            let generation =
-                read_generation(&self.conn, NODES_GENERATION).map_err(|e| self.map_err(e))?;
-            match NodeIndex::open_generation(&self.node_index_prefix(), generation) {
-                Ok(idx) => return Ok(idx),
-                Err(e) if attempt >= 2 => return Err(e.into()),
-                Err(_) => attempt += 1,
-            }
-        }
+        let prefix = self.node_index_prefix();
+        self.open_committed(NODES_GENERATION, |g| NodeIndex::open_generation(&prefix, g))
     }
 
     /// Opens the committed element state, the one API through which the stored state of ways,
@@ -523,17 +532,10 @@ impl Store {
     /// # Errors
     /// On SQLite failure, or when the state file is missing or damaged.
     pub fn element_state(&self) -> Result<ElementState, StoreError> {
-        // As for the node index: a file removed by a commit in between is followed to the next.
-        let mut attempt = 0;
-        loop {
-            let generation =
-                read_generation(&self.conn, ELEMENTS_GENERATION).map_err(|e| self.map_err(e))?;
-            match ElementState::open_generation(&self.element_state_prefix(), generation) {
-                Ok(s) => return Ok(s),
-                Err(e) if attempt >= 2 => return Err(e.into()),
-                Err(_) => attempt += 1,
-            }
-        }
+        let prefix = self.element_state_prefix();
+        self.open_committed(ELEMENTS_GENERATION, |g| {
+            ElementState::open_generation(&prefix, g)
+        })
     }
 
     /// Maps a SQLite error to a [`StoreError`] naming this database.
