@@ -62,12 +62,12 @@ for scale in "${scales[@]}"; do
     inputs=("$d/input/snapshot.osm" "$d/input/changesets.osm" "${diffs[@]}")
     areas=(--regions "$d/input/regions.geojson" --land "$d/input/land.geojson")
     # Each ingest run starts from no database (a second run of the same files would do nothing).
-    timed "(c) hexvigil ingest, 1 core" sh -c 'rm -f "$1" "$1".nodes.*; shift; exec taskset -c 0 "$@"' \
+    timed "(c) hexvigil ingest, 1 core" sh -c 'rm -f "$1" "$1"-wal "$1"-shm "$1".nodes.* "$1".elements.* "$1".edits; shift; exec taskset -c 0 "$@"' \
         - "$d/one.db" "$bin" --quiet ingest --db "$d/one.db" "${inputs[@]}"
     ingest1=$secs
     timed "(c) hexvigil report (after the ingest), 1 core" taskset -c 0 "$bin" --quiet report --db "$d/one.db" --out "$d/rep1" "${areas[@]}"
     sum_row "ingest + report, 1 core" "$ingest1" "$secs"
-    timed "(c) hexvigil ingest, $(nproc) cores" sh -c 'rm -f "$1" "$1".nodes.*; shift; exec "$@"' \
+    timed "(c) hexvigil ingest, $(nproc) cores" sh -c 'rm -f "$1" "$1"-wal "$1"-shm "$1".nodes.* "$1".elements.* "$1".edits; shift; exec "$@"' \
         - "$d/all.db" "$bin" --quiet ingest --db "$d/all.db" "${inputs[@]}"
     ingest2=$secs
     timed "(c) hexvigil report (after the ingest), $(nproc) cores" "$bin" --quiet report --db "$d/all.db" --out "$d/rep2" "${areas[@]}"

@@ -55,15 +55,21 @@ pub fn publish(temp: &Path, prefix: &Path, committed: u64) -> Result<Prepared, G
     let generation = committed + 1;
     let target = path(prefix, generation);
     std::fs::rename(temp, &target).map_err(err(&target))?;
-    let dir = parent(&target);
-    File::open(dir)
-        .and_then(|d| d.sync_all())
-        .map_err(err(dir))?;
+    sync_parent(&target)?;
     Ok(Prepared {
         prefix: prefix.to_owned(),
         previous: committed,
         generation,
     })
+}
+
+/// Syncs the folder holding `p`, so that a new or renamed entry survives a power cut.
+///
+/// # Errors
+/// When the folder cannot be opened or synced.
+pub fn sync_parent(p: &Path) -> Result<(), GenerationError> {
+    let dir = parent(p);
+    File::open(dir).and_then(|d| d.sync_all()).map_err(err(dir))
 }
 
 fn parent(p: &Path) -> &Path {

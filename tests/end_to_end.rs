@@ -425,7 +425,7 @@ fn tile_viewer_opens_in_a_browser_from_disk() {
 /// A database named without a folder (`--db state.db`, in the working folder) keeps its
 /// node-location index and element state across ingests: the files of the committed generation
 /// are recognised by name, not by a path spelt differently (`./state.db.nodes.1`), and only
-/// the previous generation's files are removed.
+/// the previous generation's files are removed. The edit-log file grows with each.
 #[test]
 fn a_database_in_the_working_folder_keeps_its_files_across_ingests() {
     let work = tempfile::tempdir().unwrap();
@@ -450,8 +450,12 @@ fn a_database_in_the_working_folder_keeps_its_files_across_ingests() {
         .filter(|n| n.starts_with("state.db."))
         .collect();
     files.sort();
-    assert_eq!(files, ["state.db.elements.3", "state.db.nodes.3"]);
+    assert_eq!(
+        files,
+        ["state.db.edits", "state.db.elements.3", "state.db.nodes.3"]
+    );
     let store = hexvigil::store::Store::open(&work.path().join("state.db")).unwrap();
     assert_eq!(store.node_index().unwrap().len(), 3);
     assert_eq!(store.element_state().unwrap().len(), 3);
+    assert_eq!(store.edits(i64::MIN, i64::MAX).unwrap().len(), 3);
 }

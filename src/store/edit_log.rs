@@ -246,7 +246,7 @@ impl BlockBuilder {
 
 /// A block's payload does not decode.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
-#[error("damaged edit block at byte {offset}: {message}")]
+#[error("damaged at byte {offset} of its payload: {message}")]
 pub struct DecodeError {
     pub offset: usize,
     pub message: &'static str,

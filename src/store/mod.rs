@@ -20,7 +20,9 @@
 //! log), and schema 2 (the element state in an `elements` table) to 3.
 
 pub mod edit_log;
+pub mod log_file;
 
+use std::cell::RefCell;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
@@ -31,7 +33,7 @@ use crate::model::{ElementType, Op};
 use crate::node_index::{self, NodeEntry, NodeIndex, NodeIndexError, NodeIndexTx};
 
 /// Current database schema version.
-pub const SCHEMA_VERSION: i64 = 3;
+pub const SCHEMA_VERSION: i64 = 4;
 
 /// Errors of the state database.
 #[derive(Debug, thiserror::Error)]
@@ -45,11 +47,15 @@ pub enum StoreError {
     Schema { path: PathBuf, found: i64 },
     #[error("{path}: the database is busy: another hexvigil run is using it")]
     Busy { path: PathBuf },
-    #[error("{path}: {source}")]
+    #[error("{path}: edit block {block} at byte {at}: {source}")]
     Damaged {
         path: PathBuf,
+        block: i64,
+        at: u64,
         source: edit_log::DecodeError,
     },
+    #[error(transparent)]
+    EditLog(#[from] log_file::LogFileError),
     #[error(transparent)]
     NodeIndex(#[from] NodeIndexError),
     #[error(transparent)]
@@ -151,7 +157,8 @@ CREATE TABLE IF NOT EXISTS changesets(
 CREATE INDEX IF NOT EXISTS changesets_uid ON changesets(uid, created_at);
 CREATE TABLE IF NOT EXISTS edit_blocks(
     id INTEGER PRIMARY KEY, min_ts INTEGER NOT NULL, max_ts INTEGER NOT NULL,
-    edits INTEGER NOT NULL, data BLOB NOT NULL);
+    edits INTEGER NOT NULL, file_offset INTEGER NOT NULL, file_len INTEGER NOT NULL,
+    crc INTEGER NOT NULL);
 CREATE INDEX IF NOT EXISTS edit_blocks_ts ON edit_blocks(max_ts, min_ts);
 CREATE TABLE IF NOT EXISTS changeset_work(
     changeset INTEGER PRIMARY KEY, uid INTEGER NOT NULL, first_ts INTEGER NOT NULL,
@@ -241,6 +248,13 @@ impl Store {
         if from <= 2 {
             store.migrate_from_2()?;
         }
+        if from <= 3 {
+            store.migrate_from_3()?;
+        }
+        // A database copied without its edit-log file is refused now rather than at its
+        // first report.
+        let end = log_end(&store.conn).map_err(|e| store.map_err(e))?;
+        log_file::check(&store.edit_log_path(), end)?;
         Ok(store)
     }
 
@@ -317,6 +331,71 @@ impl Store {
         Ok(())
     }
 
+    /// Converts a schema-3 database in one transaction: the edit log's block payloads move from
+    /// the `edit_blocks` table to the edit-log file ([`log_file`]), which is synced before the
+    /// commit; the table keeps each block's span and place in the file. The space the payloads
+    /// took in the database is given back afterwards (`VACUUM`).
+    fn migrate_from_3(&self) -> Result<(), StoreError> {
+        let err = |e| self.map_err(e);
+        let tx = Transaction::new_unchecked(&self.conn, rusqlite::TransactionBehavior::Immediate)
+            .map_err(err)?;
+        let old: bool = tx
+            .query_row(
+                "SELECT EXISTS(SELECT 1 FROM pragma_table_info('edit_blocks') WHERE name = 'data')",
+                [],
+                |r| r.get(0),
+            )
+            .map_err(err)?;
+        if old {
+            // Nothing in the file is committed yet: whatever an interrupted conversion left goes.
+            let mut log = log_file::LogAppender::open(&self.edit_log_path(), 0)?;
+            tx.execute_batch(
+                "ALTER TABLE edit_blocks RENAME TO edit_blocks_3;
+                 DROP INDEX edit_blocks_ts;",
+            )
+            .map_err(err)?;
+            tx.execute_batch(SCHEMA).map_err(err)?;
+            {
+                let mut st = tx
+                    .prepare(
+                        "SELECT id, min_ts, max_ts, edits, data FROM edit_blocks_3 ORDER BY id",
+                    )
+                    .map_err(err)?;
+                let mut rows = st.query([]).map_err(err)?;
+                let mut ins = tx
+                    .prepare(
+                        "INSERT INTO edit_blocks(id, min_ts, max_ts, edits, file_offset, file_len, crc)
+                         VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+                    )
+                    .map_err(err)?;
+                while let Some(r) = rows.next().map_err(err)? {
+                    let data = r.get_ref(4).map_err(err)?;
+                    let data = data.as_blob().map_err(|e| err(e.into()))?;
+                    let (offset, crc) = log.append(data)?;
+                    ins.execute(params![
+                        r.get::<_, i64>(0).map_err(err)?,
+                        r.get::<_, i64>(1).map_err(err)?,
+                        r.get::<_, i64>(2).map_err(err)?,
+                        r.get::<_, i64>(3).map_err(err)?,
+                        offset as i64,
+                        data.len() as i64,
+                        i64::from(crc),
+                    ])
+                    .map_err(err)?;
+                }
+            }
+            tx.execute("DROP TABLE edit_blocks_3", []).map_err(err)?;
+            log.sync()?;
+        }
+        tx.execute("UPDATE meta SET value = '4' WHERE key = 'schema'", [])
+            .map_err(err)?;
+        tx.commit().map_err(err)?;
+        if old {
+            self.conn.execute_batch("VACUUM").map_err(err)?;
+        }
+        Ok(())
+    }
+
     /// Converts a schema-1 database (one `edits` row per edit) in one transaction: the edits go
     /// to the log in time order, and the per-changeset work and the first-node squares are
     /// computed from them as an ingest would have.
@@ -336,6 +415,7 @@ impl Store {
                 .map_err(err)?;
             let mut rows = st.query([]).map_err(err)?;
             let mut builder = edit_log::BlockBuilder::default();
+            let mut log = log_file::LogAppender::open(&self.edit_log_path(), 0)?;
             let pair = |a: Option<i32>, b: Option<i32>| a.zip(b);
             while let Some(r) = rows.next().map_err(err)? {
                 let etype = ElementType::from_code(r.get(0).map_err(err)?);
@@ -376,10 +456,11 @@ impl Store {
                 }
                 builder.push(&e);
                 if builder.is_full() {
-                    put_block(&tx, builder.take()).map_err(err)?;
+                    put_block(&tx, &mut log, builder.take())?;
                 }
             }
-            put_block(&tx, builder.take()).map_err(err)?;
+            put_block(&tx, &mut log, builder.take())?;
+            log.sync()?;
         }
         for entry in self.node_index()?.iter()? {
             let (id, n) = entry?;
@@ -485,6 +566,12 @@ impl Store {
         Ok(())
     }
 
+    /// The edit-log file beside this database ([`log_file`]).
+    #[must_use]
+    pub fn edit_log_path(&self) -> PathBuf {
+        log_file::path_for(&self.path)
+    }
+
     /// The file-name prefix of this database's node-location index.
     #[must_use]
     pub fn node_index_prefix(&self) -> PathBuf {
@@ -567,7 +654,12 @@ impl Store {
             .conn
             .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)
             .map_err(|source| busy_or_sqlite(&path, source))?;
-        Ok(IngestTx { tx, path })
+        Ok(IngestTx {
+            tx,
+            log_path: log_file::path_for(&path),
+            path,
+            log: RefCell::new(None),
+        })
     }
 
     /// A committed `meta` value.
@@ -665,17 +757,31 @@ impl Store {
         let mut st = self
             .conn
             .prepare_cached(
-                "SELECT data FROM edit_blocks WHERE max_ts >= ?1 AND min_ts < ?2 ORDER BY id",
+                "SELECT id, file_offset, file_len, crc FROM edit_blocks
+                 WHERE max_ts >= ?1 AND min_ts < ?2 ORDER BY id",
             )
             .map_err(|e| self.map_err(e))?;
-        let mut rows = st.query(params![from, to]).map_err(|e| self.map_err(e))?;
-        while let Some(r) = rows.next().map_err(|e| self.map_err(e))? {
-            let data = r.get_ref(0).map_err(|e| self.map_err(e))?;
-            let data = data
-                .as_blob()
-                .map_err(|e| self.map_err(rusqlite::Error::from(e)))?;
-            f(data).map_err(|source| StoreError::Damaged {
-                path: self.path.clone(),
+        let extents = st
+            .query_map(params![from, to], |r| {
+                Ok(log_file::Extent {
+                    id: r.get(0)?,
+                    offset: u64::try_from(r.get::<_, i64>(1)?).unwrap_or(u64::MAX),
+                    len: u64::try_from(r.get::<_, i64>(2)?).unwrap_or(u64::MAX),
+                    crc: u32::try_from(r.get::<_, i64>(3)?).unwrap_or(0),
+                })
+            })
+            .map_err(|e| self.map_err(e))?
+            .collect::<Result<Vec<_>, _>>()
+            .map_err(|e| self.map_err(e))?;
+        let Some(end) = extents.iter().map(log_file::Extent::end).max() else {
+            return Ok(());
+        };
+        let mut reader = log_file::LogReader::open(&self.edit_log_path(), end)?;
+        for e in &extents {
+            f(reader.read(e)?).map_err(|source| StoreError::Damaged {
+                path: reader.path().to_owned(),
+                block: e.id,
+                at: e.offset,
                 source,
             })?;
         }
@@ -775,14 +881,46 @@ pub fn grid_square(lat_e7: i32, lon_e7: i32) -> i64 {
     row * 65_536 + col
 }
 
-fn put_block(conn: &Connection, block: Option<edit_log::Block>) -> Result<(), rusqlite::Error> {
-    if let Some(b) = block {
-        conn.prepare_cached(
-            "INSERT INTO edit_blocks(min_ts, max_ts, edits, data) VALUES(?1, ?2, ?3, ?4)",
-        )?
-        .execute(params![b.min_ts, b.max_ts, b.edits, b.data])?;
-    }
-    Ok(())
+/// Where the committed blocks of the edit-log file end (the first byte an ingest may write).
+fn log_end(conn: &Connection) -> Result<u64, rusqlite::Error> {
+    let end: i64 = conn.query_row(
+        "SELECT COALESCE(MAX(file_offset + file_len), 0) FROM edit_blocks",
+        [],
+        |r| r.get(0),
+    )?;
+    Ok(u64::try_from(end).unwrap_or(0))
+}
+
+/// Appends a block to the edit-log file and lists it in `edit_blocks`.
+fn put_block(
+    conn: &Connection,
+    log: &mut log_file::LogAppender,
+    block: Option<edit_log::Block>,
+) -> Result<(), StoreError> {
+    let Some(b) = block else {
+        return Ok(());
+    };
+    let (offset, crc) = log.append(&b.data)?;
+    let sqlite = |source| StoreError::Sqlite {
+        path: conn.path().map(PathBuf::from).unwrap_or_default(),
+        source,
+    };
+    conn.prepare_cached(
+        "INSERT INTO edit_blocks(min_ts, max_ts, edits, file_offset, file_len, crc)
+         VALUES(?1, ?2, ?3, ?4, ?5, ?6)",
+    )
+    .and_then(|mut st| {
+        st.execute(params![
+            b.min_ts,
+            b.max_ts,
+            b.edits,
+            offset as i64,
+            b.data.len() as i64,
+            i64::from(crc)
+        ])
+    })
+    .map(|_| ())
+    .map_err(sqlite)
 }
 
 fn put_squares(conn: &Connection, squares: &[(i64, i64)]) -> Result<(), rusqlite::Error> {
@@ -839,6 +977,9 @@ pub struct Prev {
 pub struct IngestTx<'a> {
     tx: Transaction<'a>,
     path: PathBuf,
+    /// The edit-log file, opened at the first block this ingest appends.
+    log_path: PathBuf,
+    log: RefCell<Option<log_file::LogAppender>>,
 }
 
 impl IngestTx<'_> {
@@ -969,12 +1110,24 @@ impl IngestTx<'_> {
         .map_err(|e| self.err(e))
     }
 
-    /// Appends a block of the edit log.
+    /// Appends a block of the edit log: its bytes to the edit-log file, its row to
+    /// `edit_blocks`. They count once the ingest commits.
     ///
     /// # Errors
-    /// On SQLite failure.
+    /// On SQLite failure, or when the edit-log file cannot be written.
     pub fn put_edit_block(&self, block: Option<edit_log::Block>) -> Result<(), StoreError> {
-        put_block(&self.tx, block).map_err(|e| self.err(e))
+        if block.is_none() {
+            return Ok(());
+        }
+        let mut log = self.log.borrow_mut();
+        let log = match &mut *log {
+            Some(l) => l,
+            None => {
+                let end = log_end(&self.tx).map_err(|e| self.err(e))?;
+                log.insert(log_file::LogAppender::open(&self.log_path, end)?)
+            }
+        };
+        put_block(&self.tx, log, block)
     }
 
     /// Adds changesets' work (edits and deletions, first edit time) from the diffs.
@@ -1031,11 +1184,17 @@ impl IngestTx<'_> {
             .map_err(|e| self.err(e))
     }
 
-    /// Makes the ingest permanent.
+    /// Makes the ingest permanent: syncs the blocks it appended to the edit-log file, then
+    /// commits.
     ///
     /// # Errors
-    /// On SQLite failure (the ingest is then rolled back).
+    /// On SQLite failure or when the edit-log file cannot be synced (the ingest is then rolled
+    /// back).
     pub fn commit(self) -> Result<(), StoreError> {
+        // The blocks are on disk before the rows naming them are.
+        if let Some(log) = self.log.borrow_mut().as_mut() {
+            log.sync()?;
+        }
         let path = self.path;
         self.tx
             .commit()
@@ -1096,7 +1255,7 @@ mod tests {
 
     /// A schema-2 database from before the node-location index: node positions only in
     /// `elements`, no generation in `meta`. Opening it builds the index from them, then moves
-    /// the `elements` rows to the element state and drops the table (schema 3).
+    /// the `elements` rows to the element state and drops the table (schema 3, then 4).
     #[test]
     fn a_schema_2_database_is_converted_on_open() {
         let dir = tempfile::tempdir().unwrap();
@@ -1126,7 +1285,7 @@ mod tests {
         );
         assert_eq!(s.meta("nodes_generation").unwrap().as_deref(), Some("1"));
         assert_eq!(s.meta("elements_generation").unwrap().as_deref(), Some("1"));
-        assert_eq!(s.meta("schema").unwrap().as_deref(), Some("3"));
+        assert_eq!(s.meta("schema").unwrap().as_deref(), Some("4"));
         let state = s.element_state().unwrap();
         assert_eq!(state.len(), 3);
         assert_eq!(
@@ -1151,6 +1310,128 @@ mod tests {
         let s = Store::open(&path).unwrap();
         assert_eq!(s.node_index().unwrap().len(), 1);
         assert_eq!(s.element_state().unwrap().len(), 3);
+    }
+
+    /// One block of two edits, as an ingest would write it.
+    fn sample_block(ts: i64) -> edit_log::Block {
+        let mut b = edit_log::BlockBuilder::default();
+        for (eid, op) in [(11, Op::Create), (12, Op::Delete)] {
+            b.push(&edit_log::EditRef {
+                etype: ElementType::Node,
+                eid,
+                version: 1,
+                op,
+                changeset: 40,
+                uid: 3,
+                user: "Ann",
+                ts: ts + eid,
+                pos: Some((452_000_000, -336_000_000)),
+                tags: "",
+                refs: None,
+                prev: None,
+            });
+        }
+        b.take().unwrap()
+    }
+
+    /// A schema-3 database keeps the edit log's payloads in `edit_blocks.data`. Opening it
+    /// moves them to the edit-log file, in order, and the same edits read back.
+    #[test]
+    fn a_schema_3_database_moves_its_edit_log_to_the_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("v3.db");
+        // A leftover of an interrupted conversion, which must go.
+        std::fs::write(log_file::path_for(&path), b"leftover").unwrap();
+        let c = Connection::open(&path).unwrap();
+        c.execute_batch(
+            "CREATE TABLE meta(key TEXT PRIMARY KEY, value TEXT NOT NULL);
+             INSERT INTO meta VALUES('schema', '3'), ('nodes_generation', '0');
+             CREATE TABLE edit_blocks(
+                id INTEGER PRIMARY KEY, min_ts INTEGER NOT NULL, max_ts INTEGER NOT NULL,
+                edits INTEGER NOT NULL, data BLOB NOT NULL);
+             CREATE INDEX edit_blocks_ts ON edit_blocks(max_ts, min_ts);",
+        )
+        .unwrap();
+        let blocks = [sample_block(1000), sample_block(5000)];
+        for b in &blocks {
+            c.execute(
+                "INSERT INTO edit_blocks(min_ts, max_ts, edits, data) VALUES(?1, ?2, ?3, ?4)",
+                params![b.min_ts, b.max_ts, b.edits, b.data],
+            )
+            .unwrap();
+        }
+        drop(c);
+        let s = Store::open(&path).unwrap();
+        assert_eq!(s.meta("schema").unwrap().as_deref(), Some("4"));
+        let file = std::fs::read(log_file::path_for(&path)).unwrap();
+        let joined: Vec<u8> = blocks.iter().flat_map(|b| b.data.clone()).collect();
+        assert_eq!(file, joined, "the payloads, in order, and nothing else");
+        let edits = s.edits(i64::MIN, i64::MAX).unwrap();
+        let got: Vec<_> = edits.iter().map(|e| (e.eid, e.ts, e.op)).collect();
+        assert_eq!(
+            got,
+            vec![
+                (11, 1011, Op::Create),
+                (12, 1012, Op::Delete),
+                (11, 5011, Op::Create),
+                (12, 5012, Op::Delete)
+            ]
+        );
+        assert_eq!(s.edits(5000, 6000).unwrap().len(), 2, "blocks by time span");
+        let data_column: i64 = s
+            .conn()
+            .query_row(
+                "SELECT count(*) FROM pragma_table_info('edit_blocks') WHERE name = 'data'",
+                [],
+                |r| r.get(0),
+            )
+            .unwrap();
+        assert_eq!(data_column, 0);
+        drop(s);
+        let s = Store::open(&path).unwrap();
+        assert_eq!(s.edits(i64::MIN, i64::MAX).unwrap().len(), 4);
+    }
+
+    /// An ingest that appended a block and failed leaves bytes no row names; the next one cuts
+    /// them off and appends after the committed blocks. A database without its file is refused.
+    #[test]
+    fn a_failed_ingest_leaves_the_edit_log_as_committed() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("s.db");
+        let log = log_file::path_for(&path);
+        let mut s = Store::open(&path).unwrap();
+        let tx = s.begin().unwrap();
+        tx.put_edit_block(Some(sample_block(1000))).unwrap();
+        tx.commit().unwrap();
+        let committed = std::fs::read(&log).unwrap();
+        {
+            let tx = s.begin().unwrap();
+            tx.put_edit_block(Some(sample_block(2000))).unwrap();
+            // dropped without commit
+        }
+        assert!(std::fs::metadata(&log).unwrap().len() > committed.len() as u64);
+        assert_eq!(s.edits(i64::MIN, i64::MAX).unwrap().len(), 2);
+        let tx = s.begin().unwrap();
+        tx.put_edit_block(Some(sample_block(3000))).unwrap();
+        tx.commit().unwrap();
+        let mut want = committed;
+        want.extend_from_slice(&sample_block(3000).data);
+        assert_eq!(std::fs::read(&log).unwrap(), want);
+        let ts: Vec<i64> = s
+            .edits(i64::MIN, i64::MAX)
+            .unwrap()
+            .iter()
+            .map(|e| e.ts)
+            .collect();
+        assert_eq!(ts, vec![1011, 1012, 3011, 3012]);
+        drop(s);
+
+        std::fs::remove_file(&log).unwrap();
+        let err = Store::open(&path).err().unwrap().to_string();
+        assert!(
+            err.contains("s.db.edits") && err.contains("missing"),
+            "{err}"
+        );
     }
 
     /// A database of schema 1 (one `edits` row per edit) is converted when opened: the same
@@ -1279,7 +1560,7 @@ mod tests {
             squares.get(&grid_square(-100_000_000, 50_000_000)),
             Some(&i64::MIN)
         );
-        assert_eq!(s.meta("schema").unwrap().as_deref(), Some("3"));
+        assert_eq!(s.meta("schema").unwrap().as_deref(), Some("4"));
         let tagged = s
             .element_state()
             .unwrap()
