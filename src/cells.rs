@@ -1,7 +1,8 @@
 //! Buckets every placed edit into an H3 cell (at one resolution per run) and an ISO week, and
 //! sums what the detectors measure per cell-week. Each changeset's share of a cell-week
 //! ([`ChangesetCellWeek`]) is kept too: it gives the distinct counts of a region and the
-//! changesets behind every outlier, and it is what an export carries for other engines.
+//! changesets behind every outlier, and it is what an export carries for other engines. A
+//! report folds the earlier weeks' shares into per-region totals ([`RegionWeeks`]) as it counts.
 
 use std::collections::{BTreeMap, HashMap};
 
@@ -142,12 +143,34 @@ pub fn cell_of(pos: crate::model::Coord, res: Resolution) -> Option<CellIndex> {
 pub struct CellCounter {
     resolution: Resolution,
     weeks: usize,
-    cells: foldhash::HashMap<CellIndex, Vec<CellWeek>>,
+    cells: foldhash::HashMap<CellIndex, Tally>,
     /// The changesets' shares, in the order first met, and where each key's share is: the map
     /// holds small entries, and `finish` sorts the shares in place instead of copying them out
-    /// of a map (half the peak memory of a large window).
+    /// of a map (half the peak memory of a large window). A batch's shares are complete when
+    /// it is added, so the map only covers the current batch.
     rows: Vec<ChangesetCellWeek>,
     row_of: foldhash::HashMap<(usize, Option<CellIndex>, i64), usize>,
+}
+
+/// A cell's weeks, and per week the sum of its edits' changeset scores in units of
+/// [`SCORE_UNIT`]: an integer sum is exact, so it does not depend on the order edits come in.
+#[derive(Debug, Clone)]
+struct Tally {
+    weeks: Vec<CellWeek>,
+    score_units: Vec<u128>,
+}
+
+/// The resolution of summed scores (2^-32).
+const SCORE_UNIT: f64 = 1.0 / 4_294_967_296.0;
+
+/// A score in [`SCORE_UNIT`]s (scores lie in 0..=1; anything else is clamped there).
+#[allow(
+    clippy::cast_possible_truncation,
+    clippy::cast_sign_loss,
+    reason = "clamped to 0..=2^32 first"
+)]
+fn score_units(score: f64) -> u128 {
+    (score.clamp(0.0, 1.0) / SCORE_UNIT).round() as u128
 }
 
 impl CellCounter {
@@ -164,18 +187,23 @@ impl CellCounter {
     }
 
     /// Adds a batch of edits with their facts. `week_of[i]` is edit `i`'s week index in the
-    /// window (`None` outside); `flagged(changeset)` says whether its changeset is flagged.
+    /// window (`None` outside); `score(changeset)` is its changeset's score, flagged at
+    /// `threshold` and above.
     pub fn add(
         &mut self,
         edits: &[Edit],
         facts: &[EditFacts],
         week_of: &[Option<usize>],
-        flagged: &dyn Fn(i64) -> bool,
+        score: &dyn Fn(i64) -> f64,
+        threshold: f64,
     ) {
+        // The shares of earlier batches are complete: their changesets do not come again.
+        self.row_of.clear();
         for ((e, f), w) in edits.iter().zip(facts).zip(week_of) {
             let Some(week) = *w else { continue };
             let cell = e.pos.and_then(|p| cell_of(p, self.resolution));
-            let is_flagged = flagged(e.changeset);
+            let sc = score(e.changeset);
+            let is_flagged = sc >= threshold;
             let rows = &mut self.rows;
             let i = *self
                 .row_of
@@ -204,10 +232,13 @@ impl CellCounter {
             count_placement(&mut r.placement, e.placed_by);
             let Some(cell) = cell else { continue };
             let weeks = self.weeks;
-            let cw = &mut self
-                .cells
-                .entry(cell)
-                .or_insert_with(|| vec![CellWeek::default(); weeks])[week];
+            let tally = self.cells.entry(cell).or_insert_with(|| Tally {
+                weeks: vec![CellWeek::default(); weeks],
+                score_units: vec![0; weeks],
+            });
+            tally.score_units[week] += score_units(sc);
+            let cw = &mut tally.weeks[week];
+            cw.score_max = cw.score_max.max(sc);
             cw.edits += 1;
             match e.op {
                 Op::Create => cw.creates += 1,
@@ -240,9 +271,11 @@ impl CellCounter {
         let mut touched: Vec<usize> = week_of.iter().flatten().copied().collect();
         touched.sort_unstable();
         touched.dedup();
-        for weeks in self.cells.values_mut() {
+        for tally in self.cells.values_mut() {
             for &w in &touched {
-                let Some(cw) = weeks.get_mut(w) else { continue };
+                let Some(cw) = tally.weeks.get_mut(w) else {
+                    continue;
+                };
                 cw.mappers.sort_unstable();
                 cw.mappers.dedup();
                 cw.newcomers.sort_unstable();
@@ -251,36 +284,41 @@ impl CellCounter {
         }
     }
 
-    /// The cell-weeks, with each one's sum and maximum of its edits' changeset scores
-    /// (`score(changeset)`), and the changesets' shares sorted by week, cell (unplaced first) and
+    /// Takes out the changesets' shares of the weeks before `week` counted so far (each is
+    /// complete), in the order first met; `finish` then returns only the others.
+    pub fn take_shares_before(&mut self, week: usize) -> Vec<ChangesetCellWeek> {
+        self.row_of.clear();
+        self.rows.extract_if(.., |r| r.week < week).collect()
+    }
+
+    /// The cell-weeks, with each one's sum and maximum of its edits' changeset scores, and the
+    /// changesets' shares (those not taken out) sorted by week, cell (unplaced first) and
     /// changeset.
     #[must_use]
-    pub fn finish(mut self, score: &dyn Fn(i64) -> f64) -> (CellWeeks, Vec<ChangesetCellWeek>) {
-        // Summed per changeset in a fixed order, so the result does not depend on batches.
+    pub fn finish(self) -> (CellWeeks, Vec<ChangesetCellWeek>) {
         drop(self.row_of);
         let mut rows = self.rows;
         rows.sort_unstable_by_key(|r| (r.week, r.cell, r.changeset));
-        for r in &rows {
-            let Some(cw) = r
-                .cell
-                .and_then(|c| self.cells.get_mut(&c))
-                .and_then(|w| w.get_mut(r.week))
-            else {
-                continue;
-            };
-            let sc = score(r.changeset);
-            #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
-            {
-                cw.score_sum += r.edits() as f64 * sc;
-            }
-            cw.score_max = cw.score_max.max(sc);
-        }
         debug_assert!(Kind::ALL.iter().enumerate().all(|(i, k)| k.index() == i));
+        let cells = self
+            .cells
+            .into_iter()
+            .map(|(c, t)| {
+                let mut weeks = t.weeks;
+                for (cw, units) in weeks.iter_mut().zip(t.score_units) {
+                    #[allow(clippy::cast_precision_loss, reason = "a sum, rounded once")]
+                    {
+                        cw.score_sum = units as f64 * SCORE_UNIT;
+                    }
+                }
+                (c, weeks)
+            })
+            .collect();
         (
             CellWeeks {
                 resolution: self.resolution,
                 weeks: self.weeks,
-                cells: self.cells.into_iter().collect(),
+                cells,
             },
             rows,
         )
@@ -333,6 +371,65 @@ impl ChangesetCellWeek {
     }
 }
 
+/// What a region's weekly trend and baseline take from the changesets' shares: the sums, and
+/// the distinct changesets and newcomer mappers.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct RegionWeek {
+    pub edits: u64,
+    pub deletes: u64,
+    pub newcomer_edits: u64,
+    /// Changesets with an edit in the region this week.
+    pub changesets: foldhash::HashSet<i64>,
+    /// Mappers with an edit in the region this week made while they were newcomers.
+    pub newcomers: foldhash::HashSet<i64>,
+}
+
+/// [`RegionWeek`]s of a window, per region and week. Folding the shares of the weeks before
+/// the report week into these as they are counted keeps a report's memory to the report week's
+/// shares, instead of the window's (ids only, not a record per changeset, cell and week).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct RegionWeeks {
+    weeks: usize,
+    /// `[region * weeks + week]`.
+    cells: Vec<RegionWeek>,
+}
+
+impl RegionWeeks {
+    /// Empty totals for `regions` regions and `weeks` weeks.
+    #[must_use]
+    pub fn new(regions: usize, weeks: usize) -> Self {
+        Self {
+            weeks,
+            cells: vec![RegionWeek::default(); regions * weeks],
+        }
+    }
+
+    /// Adds a changeset's share to a region's week (ignored outside the window).
+    pub fn add(&mut self, region: usize, share: &ChangesetCellWeek) {
+        if share.week >= self.weeks {
+            return;
+        }
+        let Some(t) = self.cells.get_mut(region * self.weeks + share.week) else {
+            return;
+        };
+        t.edits += share.edits();
+        t.deletes += share.deletes;
+        t.newcomer_edits += share.newcomer_edits;
+        t.changesets.insert(share.changeset);
+        if share.newcomer_edits > 0 {
+            t.newcomers.insert(share.uid);
+        }
+    }
+
+    /// A region's weeks, in window order (empty for an unknown region).
+    #[must_use]
+    pub fn region(&self, region: usize) -> &[RegionWeek] {
+        self.cells
+            .get(region * self.weeks..(region + 1) * self.weeks)
+            .unwrap_or(&[])
+    }
+}
+
 /// Per cell and kind, each changeset's contribution in week `week` (changesets contributing
 /// nothing are left out).
 #[must_use]
@@ -359,6 +456,94 @@ pub fn contributions(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn edit(changeset: i64, uid: i64, lat: f64, op: Op) -> Edit {
+        Edit {
+            etype: crate::model::ElementType::Node,
+            eid: changeset * 100 + uid,
+            version: 1,
+            op,
+            changeset,
+            uid,
+            user: "Ann".into(),
+            ts: 0,
+            pos: crate::model::Coord::from_degrees(lat, 10.0),
+            placed_by: crate::locate::PlacedBy::Own,
+            tags: String::new(),
+            prev_tags: None,
+            prev_version: None,
+            prev_ts: None,
+            prev_pos: None,
+        }
+    }
+
+    /// The same edits counted in batches of another order give the same cell-weeks: the
+    /// score sums are exact sums, not float sums in arrival order.
+    #[test]
+    fn counts_do_not_depend_on_batch_order() {
+        let scores = |cs: i64| [0.1, 0.7, 1.0 / 3.0, 0.9999][usize::try_from(cs).unwrap() % 4];
+        let batches: Vec<Vec<Edit>> = (0..4)
+            .map(|cs| {
+                (0..5)
+                    .map(|i| edit(cs, cs % 2, 50.0 + f64::from(i % 2) * 0.3, Op::Create))
+                    .collect()
+            })
+            .collect();
+        let count = |order: &[usize]| {
+            let mut c = CellCounter::new(Resolution::Seven, 2);
+            for &b in order {
+                let facts = vec![EditFacts::default(); batches[b].len()];
+                let week_of = vec![Some(b % 2); batches[b].len()];
+                c.add(&batches[b], &facts, &week_of, &scores, 0.5);
+            }
+            c.finish()
+        };
+        let (a, rows_a) = count(&[0, 1, 2, 3]);
+        let (b, rows_b) = count(&[3, 1, 0, 2]);
+        assert_eq!(a.cells, b.cells);
+        assert_eq!(rows_a, rows_b);
+        // Week 0 holds changesets 0 and 2: 3 + 3 edits in one cell, 2 + 2 in the other.
+        let cell = cell_of(
+            crate::model::Coord::from_degrees(50.0, 10.0).unwrap(),
+            Resolution::Seven,
+        );
+        let w0 = &a.get(cell.unwrap()).unwrap()[0];
+        assert_eq!(w0.edits, 6);
+        assert!((w0.score_sum - 3.0 * (0.1 + 1.0 / 3.0)).abs() < 1e-9);
+        assert!((w0.score_max - 1.0 / 3.0).abs() < 1e-12);
+        assert_eq!(w0.flagged_edits, 0);
+        assert_eq!(a.get(cell.unwrap()).unwrap()[1].flagged_edits, 6);
+    }
+
+    /// Folding the earlier weeks' shares into region totals keeps what the trend needs: sums,
+    /// and changesets and newcomers counted once per region and week.
+    #[test]
+    fn region_weeks_count_distinct_changesets_and_newcomers() {
+        let share = |week, changeset, uid, deletes, newcomer_edits| ChangesetCellWeek {
+            week,
+            changeset,
+            uid,
+            creates: 1,
+            deletes,
+            newcomer_edits,
+            ..ChangesetCellWeek::default()
+        };
+        let mut t = RegionWeeks::new(2, 3);
+        // One changeset in two cells of region 0, week 1: one changeset, edits summed.
+        t.add(0, &share(1, 10, 7, 2, 1));
+        t.add(0, &share(1, 10, 7, 1, 2));
+        t.add(0, &share(1, 11, 8, 0, 0));
+        t.add(1, &share(1, 12, 7, 0, 1));
+        t.add(0, &share(3, 13, 9, 0, 0)); // outside the window
+        t.add(2, &share(0, 14, 9, 0, 0)); // no such region
+        let w = &t.region(0)[1];
+        assert_eq!((w.edits, w.deletes, w.newcomer_edits), (6, 3, 3));
+        assert_eq!(w.changesets.len(), 2);
+        assert_eq!(w.newcomers.len(), 1);
+        assert_eq!(t.region(1)[1].changesets.len(), 1);
+        assert!(t.region(0)[0].changesets.is_empty());
+        assert!(t.region(2).is_empty());
+    }
 
     #[test]
     fn cell_counts_per_resolution() {

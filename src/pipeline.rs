@@ -9,7 +9,7 @@ use std::path::{Path, PathBuf};
 
 use h3o::{CellIndex, LatLng, Resolution};
 
-use crate::cells::{CellCounter, CellWeeks, ChangesetCellWeek};
+use crate::cells::{CellCounter, CellWeeks, ChangesetCellWeek, RegionWeeks};
 use crate::detect::{detect, DetectConfig};
 use crate::features::{changeset_features, edit_facts, ExistingData, FeatureConfig, MapperHistory};
 use crate::labels::RevertIndex;
@@ -190,13 +190,30 @@ pub struct Counted {
     pub first_week: IsoWeek,
     /// Cell-week counts over the window.
     pub cell_weeks: CellWeeks,
-    /// Each changeset's share of each cell-week, unplaced edits included (`cell: None`).
+    /// Each changeset's share of each cell-week, unplaced edits included (`cell: None`): of
+    /// every week, or only of the report week when the earlier ones are in `region_weeks`.
     pub changeset_cells: Vec<ChangesetCellWeek>,
+    /// The shares of the weeks before the report week, folded into per-region totals as they
+    /// were counted (a report from the database; an export keeps every share instead).
+    pub region_weeks: Option<RegionWeeks>,
     /// The changesets listed in full (texts, reasons): those with an edit in the report week for
     /// a report, every one of the window for an export.
     pub changesets: HashMap<i64, ScoredChangeset>,
     /// The score of every changeset with an edit in the window.
     pub scores: foldhash::HashMap<i64, f64>,
+}
+
+/// The region a changeset's share counts in: its cell's region, or for edits that could not be
+/// placed, the first region, in the report week only.
+fn share_region(
+    share: &ChangesetCellWeek,
+    report_idx: usize,
+    region_of_cell: impl FnOnce(CellIndex) -> Option<usize>,
+) -> Option<usize> {
+    match share.cell {
+        Some(c) => region_of_cell(c),
+        None => (share.week == report_idx).then_some(0),
+    }
 }
 
 impl Counted {
@@ -282,12 +299,17 @@ pub struct CountWeeks {
 /// changeset is scored and counted once all its edits in the window are loaded (a changeset
 /// still open at the end of a part waits for the next).
 ///
+/// With `fold_into`, the changesets' shares of the weeks before `weeks.last` are folded into
+/// per-region totals as they are counted ([`Counted::region_weeks`]), so memory follows the
+/// report week's shares; without, every share is kept (an export).
+///
 /// # Errors
 /// On database failure, or [`PipelineError::NoData`] when `weeks.last` has no edits.
 pub fn count(
     store: &Store,
     weeks: CountWeeks,
     land: &Land,
+    fold_into: Option<&[Region]>,
     opts: &ReportOptions,
     progress: &Progress,
 ) -> Result<Counted, PipelineError> {
@@ -327,7 +349,7 @@ pub fn count(
             times: &times,
             details_from: weeks.details_from.start_unix(),
         };
-        count_loaded(store, &rx, &window, land, opts, progress)
+        count_loaded(store, &rx, &window, land, fold_into, opts, progress)
     })
 }
 
@@ -431,6 +453,7 @@ fn count_loaded(
     rx: &std::sync::mpsc::Receiver<Result<Loaded, StoreError>>,
     window: &Window<'_>,
     land: &Land,
+    fold_into: Option<&[Region]>,
     opts: &ReportOptions,
     progress: &Progress,
 ) -> Result<Counted, PipelineError> {
@@ -455,6 +478,10 @@ fn count_loaded(
     };
     let threshold = opts.flag_threshold;
     let mut counter = CellCounter::new(res, weeks);
+    let report_idx = weeks.saturating_sub(1);
+    let mut region_weeks = fold_into.map(|r| RegionWeeks::new(r.len(), weeks));
+    let mut region_cache: foldhash::HashMap<CellIndex, Option<usize>> =
+        foldhash::HashMap::default();
     // Earlier weeks' changesets keep only their score: a full record each was the largest share
     // of the report's peak memory (BENCHMARKS.md, "Where the report's memory goes"). The map
     // is sized once from the first pass's count, not grown by doubling.
@@ -513,16 +540,28 @@ fn count_loaded(
                 usize::try_from(w).ok().filter(|&w| w < weeks)
             })
             .collect();
-        let flagged = |cs: i64| scores.get(&cs).is_some_and(|&s| s >= threshold);
-        counter.add(&ready, &facts, &week_of, &flagged);
+        let score = |cs: i64| scores.get(&cs).copied().unwrap_or(0.0);
+        counter.add(&ready, &facts, &week_of, &score, threshold);
+        if let (Some(totals), Some(regions)) = (&mut region_weeks, fold_into) {
+            for share in counter.take_shares_before(report_idx) {
+                let region = share_region(&share, report_idx, |c| {
+                    *region_cache
+                        .entry(c)
+                        .or_insert_with(|| crate::regions::region_of(regions, c))
+                });
+                if let Some(r) = region {
+                    totals.add(r, &share);
+                }
+            }
+        }
     }
     bar.finish();
-    let (cell_weeks, changeset_cells) =
-        counter.finish(&|cs| scores.get(&cs).copied().unwrap_or(0.0));
+    let (cell_weeks, changeset_cells) = counter.finish();
     Ok(Counted {
         first_week: window.first_week,
         cell_weeks,
         changeset_cells,
+        region_weeks,
         changesets,
         scores,
     })
@@ -552,7 +591,7 @@ pub fn analyse(
         resolution: week,
         details_from: week,
     };
-    let counted = count(store, weeks, &land, opts, progress)?;
+    let counted = count(store, weeks, &land, Some(&regions), opts, progress)?;
     let mut analysis = analyse_counted(counted, &regions, land, store.skipped()?, opts, progress);
     analysis.roads = main_roads(store, &analysis, opts, progress)?;
     Ok(analysis)
@@ -655,6 +694,15 @@ pub fn analyse_counted(
         .keys()
         .filter_map(|&c| crate::regions::region_of(regions, c).map(|r| (c, r)))
         .collect();
+    // Each region's weeks: the totals folded while counting, if any, plus the shares kept.
+    let mut totals = counted
+        .region_weeks
+        .unwrap_or_else(|| RegionWeeks::new(regions.len(), weeks));
+    for share in &counted.changeset_cells {
+        if let Some(r) = share_region(share, report_idx, |c| region_of_cell.get(&c).copied()) {
+            totals.add(r, share);
+        }
+    }
 
     let slugs =
         crate::report::assign_slugs(&regions.iter().map(|r| r.name.as_str()).collect::<Vec<_>>());
@@ -677,36 +725,28 @@ pub fn analyse_counted(
         // Counts for the week and the trend.
         let mut counts = Counts::default();
         let mut placement = Placement::default();
-        let mut trend: Vec<TrendPoint> = (0..weeks)
-            .map(|w| TrendPoint {
+        let region_weeks = totals.region(ri);
+        let trend: Vec<TrendPoint> = region_weeks
+            .iter()
+            .enumerate()
+            .map(|(w, t)| TrendPoint {
                 week: first_week.offset(w as i64).to_string(),
-                edits: 0,
-                deletes: 0,
-                newcomer_edits: 0,
-                flagged_changesets: 0,
+                edits: t.edits,
+                deletes: t.deletes,
+                newcomer_edits: t.newcomer_edits,
+                flagged_changesets: t
+                    .changesets
+                    .iter()
+                    .filter(|id| counted.scores.get(id).is_some_and(|&s| s >= threshold))
+                    .count() as u64,
             })
             .collect();
-        let mut week_sets: Vec<(HashSet<i64>, HashSet<i64>)> = vec![Default::default(); weeks];
         let mut mappers = BTreeSet::new();
         let mut cs_rows: BTreeMap<i64, (u64, u64, u64)> = BTreeMap::new();
         for r in &counted.changeset_cells {
-            let w = r.week;
-            // Edits that could not be placed count in the first region, in the report week.
-            let in_region = match r.cell {
-                Some(c) => region_of_cell.get(&c) == Some(&ri),
-                None => ri == 0 && w == report_idx,
-            };
-            if !in_region {
-                continue;
-            }
-            trend[w].edits += r.edits();
-            trend[w].deletes += r.deletes;
-            trend[w].newcomer_edits += r.newcomer_edits;
-            week_sets[w].0.insert(r.changeset);
-            if r.newcomer_edits > 0 {
-                week_sets[w].1.insert(r.uid);
-            }
-            if w == report_idx {
+            let in_region =
+                share_region(r, report_idx, |c| region_of_cell.get(&c).copied()) == Some(ri);
+            if in_region && r.week == report_idx {
                 placement += r.placement.clone();
                 counts.edits += r.edits();
                 counts.creates += r.creates;
@@ -721,13 +761,9 @@ pub fn analyse_counted(
         }
         counts.changesets = cs_rows.len() as u64;
         counts.mappers = mappers.len() as u64;
-        counts.newcomers = week_sets[report_idx].1.len() as u64;
-        for (t, (ids, _)) in trend.iter_mut().zip(&week_sets) {
-            t.flagged_changesets = ids
-                .iter()
-                .filter(|id| counted.scores.get(id).is_some_and(|&s| s >= threshold))
-                .count() as u64;
-        }
+        counts.newcomers = region_weeks
+            .get(report_idx)
+            .map_or(0, |t| t.newcomers.len() as u64);
         #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
         let baseline_counts = {
             let n = report_idx.max(1) as f64;
@@ -743,14 +779,14 @@ pub fn analyse_counted(
                     .map(|t| t.deletes as f64)
                     .sum::<f64>()
                     / n,
-                newcomers: week_sets[..report_idx]
+                newcomers: region_weeks[..report_idx]
                     .iter()
-                    .map(|s| s.1.len() as f64)
+                    .map(|t| t.newcomers.len() as f64)
                     .sum::<f64>()
                     / n,
-                changesets: week_sets[..report_idx]
+                changesets: region_weeks[..report_idx]
                     .iter()
-                    .map(|s| s.0.len() as f64)
+                    .map(|t| t.changesets.len() as f64)
                     .sum::<f64>()
                     / n,
             }

@@ -552,7 +552,7 @@ pub fn export(
         resolution: default_week,
         details_from: first_week,
     };
-    let counted = crate::pipeline::count(store, weeks, &land, opts, progress)?;
+    let counted = crate::pipeline::count(store, weeks, &land, None, opts, progress)?;
     prepare_folder(out)?;
     let summary = write_tables(out, &counted, &regions, opts, progress)?;
     let manifest = Manifest {
@@ -1043,6 +1043,7 @@ pub fn read(
             cells,
         },
         changeset_cells,
+        region_weeks: None,
         scores: changesets.values().map(|c| (c.id, c.score)).collect(),
         changesets,
     })
@@ -1200,6 +1201,7 @@ mod tests {
                 cells,
             },
             changeset_cells: rows,
+            region_weeks: None,
             scores: changesets.values().map(|c| (c.id, c.score)).collect(),
             changesets,
         };
