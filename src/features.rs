@@ -7,6 +7,7 @@
 //! feature's meaning, is in `docs/features.md`.
 
 use std::collections::HashMap;
+use std::hash::BuildHasher;
 
 use rusqlite::params;
 
@@ -163,7 +164,7 @@ pub struct EditFacts {
 /// eight neighbours (about 3 km across) held no node before its changeset began.
 #[derive(Debug, Default, Clone)]
 pub struct ExistingData {
-    first: HashMap<i64, i64>,
+    first: foldhash::HashMap<i64, i64>,
 }
 
 impl ExistingData {
@@ -173,7 +174,7 @@ impl ExistingData {
     /// On database failure.
     pub fn load(store: &Store) -> Result<Self, StoreError> {
         Ok(Self {
-            first: store.grid_first()?,
+            first: store.grid_first()?.into_iter().collect(),
         })
     }
 
@@ -199,14 +200,14 @@ impl ExistingData {
 /// comments).
 #[derive(Debug, Default)]
 pub struct MapperHistory {
-    created: HashMap<i64, Vec<i64>>,
+    created: foldhash::HashMap<i64, Vec<i64>>,
     /// Per mapper, aligned with `created`: distinct ISO weeks among the changesets up to and
     /// including each one.
-    weeks_upto: HashMap<i64, Vec<u32>>,
+    weeks_upto: foldhash::HashMap<i64, Vec<u32>>,
     /// Per mapper, per changeset in time order: (first edit time, edits so far, deletions so far).
-    work: HashMap<i64, Vec<(i64, u64, u64)>>,
+    work: foldhash::HashMap<i64, Vec<(i64, u64, u64)>>,
     /// Per mapper: how each reverted changeset of theirs was reverted, by changeset start time.
-    reverted: HashMap<i64, Vec<(i64, RevertedBy)>>,
+    reverted: foldhash::HashMap<i64, Vec<(i64, RevertedBy)>>,
 }
 
 impl MapperHistory {
@@ -348,17 +349,31 @@ pub fn account_age_days(hist: &MapperHistory, uid: i64, first_edit: i64, t: i64)
     days
 }
 
+/// The value of the `name` tag of packed tags, if any, and how many tags they hold: one scan
+/// instead of a [`packed_tag`] lookup and an [`unpack_tags`] count.
+fn name_and_count(tags: &str) -> (Option<&str>, usize) {
+    let mut name = None;
+    let mut n = 0;
+    for (k, v) in unpack_tags(tags) {
+        if name.is_none() && k == "name" {
+            name = Some(v);
+        }
+        n += 1;
+    }
+    (name, n)
+}
+
 /// Computes the facts of each edit.
 #[must_use]
-pub fn edit_facts(
+pub fn edit_facts<S: BuildHasher>(
     edits: &[Edit],
     hist: &MapperHistory,
-    first_edit_by_uid: &HashMap<i64, i64>,
+    first_edit_by_uid: &HashMap<i64, i64, S>,
     land: &Land,
     existing: &ExistingData,
     cfg: &FeatureConfig,
 ) -> Vec<EditFacts> {
-    let mut cs_start: HashMap<i64, i64> = HashMap::new();
+    let mut cs_start: foldhash::HashMap<i64, i64> = foldhash::HashMap::default();
     for e in edits {
         let t = cs_start.entry(e.changeset).or_insert(e.ts);
         *t = (*t).min(e.ts);
@@ -373,8 +388,8 @@ pub fn edit_facts(
                 newcomer: age < cfg.newcomer_days,
                 ..EditFacts::default()
             };
-            let new_name = packed_tag(&e.tags, "name");
-            let old_name = e.prev_tags.as_deref().and_then(|t| packed_tag(t, "name"));
+            let (new_name, new_count) = name_and_count(&e.tags);
+            let (old_name, old_count) = e.prev_tags.as_deref().map_or((None, 0), name_and_count);
             if e.op != Op::Delete {
                 if let (Some(n), Some(o)) = (new_name, old_name) {
                     f.name_changed = n != o;
@@ -382,10 +397,8 @@ pub fn edit_facts(
                 f.spam_name = new_name.is_some_and(|n| is_spam_like(n) && old_name != Some(n));
                 f.spam_rename = f.spam_name && e.op == Op::Modify;
             }
-            if e.op == Op::Modify {
-                if let Some(prev) = &e.prev_tags {
-                    f.tags_stripped = unpack_tags(prev).count() >= unpack_tags(&e.tags).count() + 3;
-                }
+            if e.op == Op::Modify && e.prev_tags.is_some() {
+                f.tags_stripped = old_count >= new_count + 3;
             }
             if e.op == Op::Delete {
                 f.deleted_feature = e.etype != ElementType::Node
@@ -405,16 +418,18 @@ pub fn edit_facts(
             }
             let tagged = !e.tags.is_empty();
             let judged = e.etype != ElementType::Relation || tagged;
+            // Whether a tagged creation is judged at all (read once: a scan of its tags).
+            let suspect = e.op == Op::Create && tagged && judged && !is_maritime(&e.tags);
             if e.op == Op::Create && !land.is_empty() {
                 if let Some(d) = e.pos.and_then(|p| land_lookup.distance_to_land_m(p)) {
                     f.water_create = d > 0.0;
-                    if d >= cfg.offshore_min_m && tagged && judged && !is_maritime(&e.tags) {
+                    if d >= cfg.offshore_min_m && suspect {
                         f.offshore_create = true;
                         f.offshore_m = d;
                     }
                 }
             }
-            if e.op == Op::Create && tagged && judged && !is_maritime(&e.tags) {
+            if suspect {
                 let start = cs_start.get(&e.changeset).copied().unwrap_or(e.ts);
                 f.far_create = e.pos.is_some_and(|p| existing.is_far(p, start));
             }
@@ -476,19 +491,21 @@ pub struct ChangesetFeatures {
 
 /// Builds each changeset's features from its edits (and metadata where present).
 #[must_use]
-pub fn changeset_features(
+pub fn changeset_features<S: BuildHasher>(
     edits: &[Edit],
     facts: &[EditFacts],
     metas: &HashMap<i64, ChangesetMeta>,
     hist: &MapperHistory,
-    first_edit_by_uid: &HashMap<i64, i64>,
+    first_edit_by_uid: &HashMap<i64, i64, S>,
 ) -> Vec<ChangesetFeatures> {
-    // Per changeset: its features so far, first and last edit time, and new names given.
-    type Partial<'a> = (ChangesetFeatures, i64, i64, HashMap<&'a str, u64>);
-    let mut by_cs: HashMap<i64, Partial<'_>> = HashMap::new();
+    // Per changeset: its features so far, first and last edit time, and new names given. The
+    // map holds positions in `partial` only, so growing it moves small entries, not features.
+    type Partial<'a> = (ChangesetFeatures, i64, i64, foldhash::HashMap<&'a str, u64>);
+    let mut partial: Vec<Partial<'_>> = Vec::new();
+    let mut by_cs: foldhash::HashMap<i64, usize> = foldhash::HashMap::default();
     for (e, f) in edits.iter().zip(facts) {
-        let entry = by_cs.entry(e.changeset).or_insert_with(|| {
-            (
+        let k = *by_cs.entry(e.changeset).or_insert_with(|| {
+            partial.push((
                 ChangesetFeatures {
                     id: e.changeset,
                     uid: e.uid,
@@ -497,10 +514,11 @@ pub fn changeset_features(
                 },
                 i64::MAX,
                 i64::MIN,
-                HashMap::new(),
-            )
+                foldhash::HashMap::default(),
+            ));
+            partial.len() - 1
         });
-        let (c, t0, t1, names) = entry;
+        let (c, t0, t1, names) = &mut partial[k];
         if e.ts < *t0 {
             // The mapper of the changeset's first edit, whatever order the edits come in.
             if c.uid != e.uid {
@@ -541,8 +559,8 @@ pub fn changeset_features(
             }
         }
     }
-    let mut out: Vec<ChangesetFeatures> = by_cs
-        .into_values()
+    let mut out: Vec<ChangesetFeatures> = partial
+        .into_iter()
         .map(|(mut c, t0, t1, names)| {
             c.repeated_name_max = names.values().copied().max().unwrap_or(0);
             #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]

@@ -316,7 +316,7 @@ pub fn count(
     let (first_week, last_week, resolution_week) = (weeks.first, weeks.last, weeks.resolution);
     let from = first_week.start_unix();
     let to = last_week.offset(1).start_unix();
-    let times = store.edit_times(from, to)?;
+    let mut times = store.edit_times(from, to)?;
     if times.last_ts.is_none_or(|t| t < last_week.start_unix()) {
         return Err(PipelineError::NoData {
             path: store.path().to_owned(),
@@ -335,6 +335,13 @@ pub fn count(
             .filter(|&(a, b)| a < rw.1 && b > rw.0)
             .collect()
     });
+    // Both maps are read once or more per edit: moved to the faster hasher.
+    let changeset_last: foldhash::HashMap<i64, i64> = std::mem::take(&mut times.changeset_last)
+        .into_iter()
+        .collect();
+    let mapper_first: foldhash::HashMap<i64, i64> = std::mem::take(&mut times.mapper_first)
+        .into_iter()
+        .collect();
     std::thread::scope(|scope| {
         // A second connection loads and places the edits, one part ahead of the counting
         // below (a core each when there are two).
@@ -346,7 +353,9 @@ pub fn count(
             weeks: usize::try_from(last_week.ordinal() - first_week.ordinal() + 1).unwrap_or(0),
             from,
             parts: &parts,
-            times: &times,
+            changeset_last: &changeset_last,
+            mapper_first: &mapper_first,
+            hourly: &times.hourly,
             details_from: weeks.details_from.start_unix(),
         };
         count_loaded(store, &rx, &window, land, fold_into, opts, progress)
@@ -389,7 +398,12 @@ struct Window<'a> {
     /// Start of the first week (unix seconds).
     from: i64,
     parts: &'a [(i64, i64)],
-    times: &'a crate::store::EditTimes,
+    /// Per changeset, the time of its last edit in the window.
+    changeset_last: &'a foldhash::HashMap<i64, i64>,
+    /// Per mapper (uid), the time of their first edit in the window.
+    mapper_first: &'a foldhash::HashMap<i64, i64>,
+    /// Edits per hour of the window.
+    hourly: &'a [u64],
     /// See [`CountWeeks::details_from`] (unix seconds).
     details_from: i64,
 }
@@ -457,8 +471,8 @@ fn count_loaded(
     opts: &ReportOptions,
     progress: &Progress,
 ) -> Result<Counted, PipelineError> {
-    let (weeks, from, times) = (window.weeks, window.from, window.times);
-    let first_edit = &times.mapper_first;
+    let (weeks, from) = (window.weeks, window.from);
+    let first_edit = window.mapper_first;
     let mut uids: Vec<i64> = first_edit.keys().copied().collect();
     uids.sort_unstable();
     let reverts = RevertIndex::load(store)?;
@@ -485,12 +499,14 @@ fn count_loaded(
     // Earlier weeks' changesets keep only their score: a full record each was the largest share
     // of the report's peak memory (BENCHMARKS.md, "Where the report's memory goes"). The map
     // is sized once from the first pass's count, not grown by doubling.
-    let mut scores: foldhash::HashMap<i64, f64> =
-        foldhash::HashMap::with_capacity_and_hasher(times.changeset_last.len(), Default::default());
+    let mut scores: foldhash::HashMap<i64, f64> = foldhash::HashMap::with_capacity_and_hasher(
+        window.changeset_last.len(),
+        Default::default(),
+    );
     let mut changesets: HashMap<i64, ScoredChangeset> = HashMap::new();
     let mut waiting: Vec<Edit> = Vec::new();
     let mut waiting_metas: HashMap<i64, ChangesetMeta> = HashMap::new();
-    let bar = progress.steps(times.hourly.iter().sum(), "count");
+    let bar = progress.steps(window.hourly.iter().sum(), "count");
     for &(_, part_end) in window.parts {
         let Loaded::Part(mut ready, mut metas) = next()? else {
             return Err(lost());
@@ -500,7 +516,7 @@ fn count_loaded(
         ready.append(&mut waiting);
         metas.extend(waiting_metas.drain());
         // Changesets with edits after this part wait, with their metadata, for a later part.
-        let done = |cs: i64| times.changeset_last.get(&cs).is_none_or(|&t| t < part_end);
+        let done = |cs: i64| window.changeset_last.get(&cs).is_none_or(|&t| t < part_end);
         let later: Vec<Edit> = ready.extract_if(.., |e| !done(e.changeset)).collect();
         for e in &later {
             if let Some(m) = metas.remove(&e.changeset) {
@@ -512,7 +528,7 @@ fn count_loaded(
         for f in changeset_features(&ready, &facts, &metas, &hist, first_edit) {
             let s = opts.scoring.score(&f);
             scores.insert(f.id, s.score);
-            let details = times
+            let details = window
                 .changeset_last
                 .get(&f.id)
                 .is_some_and(|&t| t >= window.details_from);
