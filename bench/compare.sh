@@ -10,6 +10,8 @@
 # Usage: bench/compare.sh [SCALE...]   (default: 1 4 16; scale 1 = intensity 6, ~1 M changes)
 # RUNS=N runs each timing N times and keeps the fastest (a busy machine slows single runs).
 # Needs: pip install osmium h3. HEXVIGIL=path compares another build of the binary.
+# INPUTS=dir reuses inputs generated before (dir/xSCALE/input, from `hexvigil demo --out
+# dir/xSCALE --intensity 6*SCALE --inputs-only`; the generator is deterministic).
 set -euo pipefail
 cd "$(dirname "$0")/.."
 scales=("$@"); [ ${#scales[@]} -gt 0 ] || scales=(1 4 16)
@@ -51,7 +53,11 @@ echo "| scale | run | wall time | CPU time | element changes/s | peak memory | Ã
 echo "|---|---|---|---|---|---|---|---|---|"
 for scale in "${scales[@]}"; do
     d="$work/x$scale"
-    "$bin" --quiet demo --out "$d" --intensity $((6 * scale)) --inputs-only
+    if [ -n "${INPUTS:-}" ] && [ -d "$INPUTS/x$scale/input" ]; then
+        mkdir -p "$d" && ln -s "$(realpath "$INPUTS/x$scale/input")" "$d/input"
+    else
+        "$bin" --quiet demo --out "$d" --intensity $((6 * scale)) --inputs-only
+    fi
     mapfile -t diffs < <(find "$d/input/diffs" -name '*.osc.gz' | sort)
     elements=$(gzip -dc "${diffs[@]}" | grep -c -E '<(node|way|relation)[ >]')
     echo "| $scale | input: intensity $((6 * scale)), ${#diffs[@]} diffs, $elements element changes, $(du -cb "${diffs[@]}" | tail -1 | cut -f1) bytes gzip | | | | | | | |"
