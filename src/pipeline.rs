@@ -22,7 +22,7 @@ use crate::regions::{Region, RegionError};
 use crate::render::{HeatMap, RenderError, Style};
 use crate::report::{PageContext, ReportError};
 use crate::score::Scoring;
-use crate::store::{Store, StoreError};
+use crate::store::{EditTimes, Store, StoreError};
 use crate::summary::{
     BaselineCounts, ChangesetRow, Counts, FlaggedChangeset, Outlier, Placement, RegionReport,
     RegionSummary, Summary, TrendPoint, SCHEMA_VERSION,
@@ -316,7 +316,7 @@ pub fn count(
     let (first_week, last_week, resolution_week) = (weeks.first, weeks.last, weeks.resolution);
     let from = first_week.start_unix();
     let to = last_week.offset(1).start_unix();
-    let mut times = store.edit_times(from, to)?;
+    let times = store.edit_times(from, to)?;
     if times.last_ts.is_none_or(|t| t < last_week.start_unix()) {
         return Err(PipelineError::NoData {
             path: store.path().to_owned(),
@@ -335,13 +335,11 @@ pub fn count(
             .filter(|&(a, b)| a < rw.1 && b > rw.0)
             .collect()
     });
-    // Both maps are read once or more per edit: moved to the faster hasher.
-    let changeset_last: foldhash::HashMap<i64, i64> = std::mem::take(&mut times.changeset_last)
-        .into_iter()
-        .collect();
-    let mapper_first: foldhash::HashMap<i64, i64> = std::mem::take(&mut times.mapper_first)
-        .into_iter()
-        .collect();
+    let EditTimes {
+        changeset_last,
+        mapper_first,
+        ..
+    } = &times;
     std::thread::scope(|scope| {
         // A second connection loads and places the edits, one part ahead of the counting
         // below (a core each when there are two).
@@ -353,8 +351,8 @@ pub fn count(
             weeks: usize::try_from(last_week.ordinal() - first_week.ordinal() + 1).unwrap_or(0),
             from,
             parts: &parts,
-            changeset_last: &changeset_last,
-            mapper_first: &mapper_first,
+            changeset_last,
+            mapper_first,
             hourly: &times.hourly,
             details_from: weeks.details_from.start_unix(),
         };
