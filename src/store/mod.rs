@@ -626,6 +626,18 @@ impl Store {
         })
     }
 
+    /// Sets this connection's SQLite page cache (64 MiB when opened). A connection that reads
+    /// rows in key order, like the report's loading thread, needs little: the system's file
+    /// cache serves it as well.
+    ///
+    /// # Errors
+    /// On SQLite failure.
+    pub fn set_cache_mib(&self, mib: u32) -> Result<(), StoreError> {
+        self.conn
+            .pragma_update(None, "cache_size", -1024 * i64::from(mib))
+            .map_err(|e| self.map_err(e))
+    }
+
     /// Maps a SQLite error to a [`StoreError`] naming this database.
     #[must_use]
     pub fn map_err(&self, source: rusqlite::Error) -> StoreError {
