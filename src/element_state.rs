@@ -7,8 +7,10 @@
 //! cache every lookup became a read from the file (BENCHMARKS.md, "The element state"). Here the
 //! committed state is one immutable file: a lookup is a binary search in a small in-memory
 //! directory, one positioned read of a block of about [`BLOCK_BYTES`] and a scan of it. An ingest keeps its
-//! changes in memory (one arena of encoded rows and a hash map), and writes the next file by
-//! merging them with the committed one in key order.
+//! changes in memory (one arena of encoded rows and a hash map); past a bound it writes them,
+//! sorted, to a temporary run file with a filter of its keys (the committed file is never
+//! rewritten mid-ingest), and it writes the next file by merging the committed one, the runs
+//! and the arena in key order.
 //!
 //! ## Generations and crash consistency
 //! The state of database `region.db` is the file `region.db.elements.<g>`, replaced whole by
@@ -45,6 +47,9 @@ pub const DEFAULT_SPILL_BYTES: usize = 48 << 20;
 const VISIBLE: u8 = 1;
 const HAS_POS: u8 = 2;
 const HAS_REFS: u8 = 4;
+/// Set only in an ingest's temporary runs: the row applies only if the element has no earlier
+/// state (never in a committed file).
+const IF_ABSENT: u8 = 8;
 
 /// Errors of the element state; each names its file.
 #[derive(Debug, thiserror::Error)]
@@ -524,6 +529,8 @@ struct StateWriter {
     last: Option<Key>,
     rows: u64,
     scratch: Vec<u8>,
+    /// When set, the filter key of every row written (for a run's filter).
+    filter_keys: Option<Vec<u64>>,
 }
 
 impl StateWriter {
@@ -542,6 +549,7 @@ impl StateWriter {
             last: None,
             rows: 0,
             scratch: Vec::with_capacity(64),
+            filter_keys: None,
         })
     }
 
@@ -567,11 +575,15 @@ impl StateWriter {
         self.at += self.scratch.len() + body.len();
         self.last = Some(key);
         self.rows += 1;
+        if let Some(keys) = &mut self.filter_keys {
+            keys.push(filter_key(key));
+        }
         Ok(())
     }
 
-    /// Writes the directory and footer and syncs the file.
-    fn finish(mut self) -> Result<(), ElementStateError> {
+    /// Writes the directory and footer, syncs the file if asked, and returns the filter keys
+    /// collected (none unless asked for).
+    fn finish(mut self, sync: bool) -> Result<Vec<u64>, ElementStateError> {
         let e = io_err(&self.path);
         let dir_at = self.at as u64;
         for &((t, id), off) in &self.dir {
@@ -586,12 +598,15 @@ impl StateWriter {
         }
         self.out.write_all(MAGIC).map_err(&e)?;
         let file = self.out.into_inner().map_err(|x| e(x.into_error()))?;
-        file.sync_all().map_err(&e)
+        if sync {
+            file.sync_all().map_err(&e)?;
+        }
+        Ok(self.filter_keys.take().unwrap_or_default())
     }
 }
 
 /// A staged row: where its encoding lies in the arena, and whether it only applies when the
-/// element has no committed state (a created version 1, which replaces nothing).
+/// element has no earlier state (a created version 1, which replaces nothing).
 #[derive(Debug, Clone, Copy)]
 struct Staged {
     start: u32,
@@ -605,17 +620,123 @@ impl Staged {
     }
 }
 
+/// Where a body's flags byte lies (after the version and timestamp varints).
+fn flags_at(body: &[u8]) -> Option<usize> {
+    let mut at = 0;
+    get_varint(body, &mut at)?;
+    get_varint(body, &mut at)?;
+    (at < body.len()).then_some(at)
+}
+
+/// Whether a body carries [`IF_ABSENT`] (only rows of an ingest's temporary runs do).
+fn is_if_absent(body: &[u8]) -> bool {
+    flags_at(body).is_some_and(|at| body[at] & IF_ABSENT != 0)
+}
+
+/// Sets or clears [`IF_ABSENT`] in a body.
+fn mark_if_absent(body: &mut [u8], on: bool) {
+    if let Some(at) = flags_at(body) {
+        if on {
+            body[at] |= IF_ABSENT;
+        } else {
+            body[at] &= !IF_ABSENT;
+        }
+    }
+}
+
+/// The filter key of an element key (distinct keys may share one: a filter only says "maybe").
+fn filter_key((t, id): Key) -> u64 {
+    use std::hash::BuildHasher;
+    foldhash::fast::FixedState::with_seed(0x6865_7876).hash_one((t, id))
+}
+
+/// Staged rows spilled to a sorted temporary file during one ingest, with a filter of its keys
+/// so that most lookups of elements it does not hold read nothing.
+struct Run {
+    state: ElementState,
+    /// `None` when the filter could not be built (then every lookup reads the file).
+    filter: Option<xorf::BinaryFuse8>,
+}
+
+impl Run {
+    /// The row of `key` in this run, and whether it is an "if absent" row.
+    fn find<R>(
+        &self,
+        key: Key,
+        f: &mut impl FnMut(&[u8]) -> R,
+    ) -> Result<Option<(bool, R)>, ElementStateError> {
+        use xorf::Filter;
+        if self
+            .filter
+            .as_ref()
+            .is_some_and(|fl| !fl.contains(&filter_key(key)))
+        {
+            return Ok(None);
+        }
+        self.state.find(key, |b| (is_if_absent(b), f(b)))
+    }
+}
+
+/// Most runs an ingest keeps before merging them into one (a lookup may read each).
+const MAX_RUNS: usize = 8;
+
+/// One input of a merge: records in key order, each with its "if absent" mark.
+type Source<'a> = Box<dyn Iterator<Item = Result<(Key, Vec<u8>), ElementStateError>> + 'a>;
+
+/// Merges `sources`, oldest first, into `out`. Of an element's rows the newest that replaces
+/// wins; failing one, the oldest "if absent" row (it applied to an element with no state, and
+/// later ones found it there). With `keep_marks` the winner keeps its mark (a merged run, which
+/// still sits on top of the base); without, marks are cleared (the next generation).
+fn merge(
+    mut sources: Vec<Source<'_>>,
+    out: &mut StateWriter,
+    keep_marks: bool,
+) -> Result<(), ElementStateError> {
+    let mut heads: Vec<Option<(Key, Vec<u8>)>> = Vec::with_capacity(sources.len());
+    for s in &mut sources {
+        heads.push(s.next().transpose()?);
+    }
+    while let Some(min) = heads.iter().flatten().map(|h| h.0).min() {
+        let mut chosen: Option<(usize, bool)> = None;
+        for (i, h) in heads.iter().enumerate() {
+            if let Some((k, body)) = h {
+                if *k == min {
+                    let if_absent = is_if_absent(body);
+                    if !if_absent || chosen.is_none() {
+                        chosen = Some((i, if_absent));
+                    }
+                }
+            }
+        }
+        for (i, h) in heads.iter_mut().enumerate() {
+            if h.as_ref().is_some_and(|(k, _)| *k == min) {
+                let (_, mut body) = std::mem::replace(h, sources[i].next().transpose()?)
+                    .unwrap_or_default();
+                if chosen.is_some_and(|(c, _)| c == i) {
+                    if !keep_marks {
+                        mark_if_absent(&mut body, false);
+                    }
+                    out.push(min, &body)?;
+                }
+            }
+        }
+    }
+    Ok(())
+}
+
 /// The changes one ingest makes to the element state, staged until [`ElementStateTx::prepare`].
 ///
 /// Lookups see the committed state and everything staged so far. Staged rows are encoded into
-/// one arena; past `spill_bytes` they are merged with the base into a temporary base file, so
-/// memory stays bounded for any input size.
+/// one arena; past `spill_bytes` they are written, sorted, to a temporary run file (the
+/// committed file is not rewritten), so memory stays bounded and every row is written about
+/// twice whatever the input size: once to its run, once to the next generation, which
+/// [`ElementStateTx::prepare`] merges from the committed file, the runs and the arena.
 pub struct ElementStateTx {
     prefix: PathBuf,
     committed: u64,
     base: ElementState,
-    /// Whether `base` is a temporary merge (deleted when replaced or dropped).
-    base_is_temp: bool,
+    /// Spilled runs, oldest first (temporary files, deleted when merged or dropped).
+    runs: Vec<Run>,
     arena: Vec<u8>,
     staged: foldhash::HashMap<Key, Staged>,
     spill_bytes: usize,
@@ -646,7 +767,7 @@ impl ElementStateTx {
             prefix: prefix.to_owned(),
             committed,
             base: ElementState::open_generation(prefix, committed)?,
-            base_is_temp: false,
+            runs: Vec::new(),
             // Reserved whole: growing by doubling would copy it and overshoot the bound.
             arena: Vec::with_capacity(spill_bytes.saturating_add(1 << 16).min(1 << 31)),
             staged: foldhash::HashMap::default(),
@@ -661,19 +782,32 @@ impl ElementStateTx {
         generations::temp_path(&self.prefix, self.committed, what, self.temp_seq)
     }
 
-    /// Finds an element's encoded row, staged or committed, and hands it to `f`.
+    /// Finds an element's encoded row, staged, in a run or committed, and hands it to `f`.
+    /// Newest first: the first row found that replaces is the answer; rows marked "if absent"
+    /// yield to any older row, so the oldest of them is the answer when no row replaces.
     fn find<R>(
         &self,
         key: Key,
         mut f: impl FnMut(&[u8]) -> R,
     ) -> Result<Option<R>, ElementStateError> {
-        match self.staged.get(&key) {
-            Some(s) if !s.if_absent => Ok(self.arena.get(s.range()).map(f)),
-            Some(s) => match self.base.find(key, &mut f)? {
-                Some(r) => Ok(Some(r)),
-                None => Ok(self.arena.get(s.range()).map(f)),
-            },
-            None => self.base.find(key, f),
+        let mut kept: Option<R> = None;
+        if let Some(s) = self.staged.get(&key) {
+            let body = self.arena.get(s.range()).unwrap_or(&[]);
+            if !s.if_absent {
+                return Ok(Some(f(body)));
+            }
+            kept = Some(f(body));
+        }
+        for run in self.runs.iter().rev() {
+            match run.find(key, &mut f)? {
+                Some((false, r)) => return Ok(Some(r)),
+                Some((true, r)) => kept = Some(r),
+                None => {}
+            }
+        }
+        match self.base.find(key, &mut f)? {
+            Some(r) => Ok(Some(r)),
+            None => Ok(kept),
         }
     }
 
@@ -704,7 +838,7 @@ impl ElementStateTx {
     /// state), an existing state, which can only be as new or newer, is kept.
     ///
     /// # Errors
-    /// When merging into a temporary file fails.
+    /// When writing a temporary run fails.
     pub fn put(
         &mut self,
         replace: bool,
@@ -719,6 +853,7 @@ impl ElementStateTx {
         self.changed = true;
         let start = self.arena.len();
         encode(row, &mut self.arena);
+        mark_if_absent(&mut self.arena[start..], !replace);
         let (Ok(start), Ok(len)) = (
             u32::try_from(start),
             u32::try_from(self.arena.len() - start),
@@ -742,48 +877,48 @@ impl ElementStateTx {
         Ok(())
     }
 
-    /// Merges the base with the staged rows into `out`.
-    fn merge_into(&mut self, out: &mut StateWriter) -> Result<(), ElementStateError> {
+    /// The staged rows in key order (bodies copied), emptying the stage.
+    fn take_staged(&mut self) -> Source<'static> {
         let mut staged: Vec<(Key, Staged)> = std::mem::take(&mut self.staged).into_iter().collect();
         staged.sort_unstable_by_key(|s| s.0);
-        let mut base = self.base.sequential(0).peekable();
-        for (key, s) in staged {
-            let mut base_has = false;
-            while let Some(r) = base.next_if(|r| r.as_ref().map_or(true, |(k, _)| *k <= key)) {
-                let (k, body) = r?;
-                if k == key {
-                    base_has = true;
-                    if s.if_absent {
-                        out.push(k, &body)?;
-                    }
-                } else {
-                    out.push(k, &body)?;
-                }
-            }
-            if !(base_has && s.if_absent) {
-                out.push(key, self.arena.get(s.range()).unwrap_or(&[]))?;
-            }
-        }
-        for r in base {
-            let (k, body) = r?;
-            out.push(k, &body)?;
-        }
-        self.arena.clear();
-        Ok(())
+        let arena = std::mem::take(&mut self.arena);
+        self.arena = Vec::with_capacity(arena.capacity());
+        Box::new(
+            staged
+                .into_iter()
+                .map(move |(k, s)| Ok((k, arena.get(s.range()).unwrap_or(&[]).to_vec()))),
+        )
     }
 
-    /// Merges the staged rows into a new temporary base, emptying memory.
+    /// Writes the staged rows, sorted, to a new temporary run, emptying memory. Once there
+    /// would be [`MAX_RUNS`], the runs are merged into the new one as well.
     fn spill(&mut self) -> Result<(), ElementStateError> {
-        let path = self.temp_path("base");
+        let path = self.temp_path("run");
         let mut w = StateWriter::create(&path)?;
-        self.merge_into(&mut w)?;
-        w.finish()?;
-        let old = std::mem::replace(&mut self.base, ElementState::open(&path)?);
-        if self.base_is_temp {
-            let _ = std::fs::remove_file(&old.path);
+        w.filter_keys = Some(Vec::new());
+        let merged = if self.runs.len() + 1 >= MAX_RUNS {
+            std::mem::take(&mut self.runs)
+        } else {
+            Vec::new()
+        };
+        let mut sources: Vec<Source<'_>> = merged
+            .iter()
+            .map(|r| Box::new(r.state.sequential(0)) as Source<'_>)
+            .collect();
+        sources.push(self.take_staged());
+        merge(sources, &mut w, true)?;
+        // Runs never outlive the ingest: no sync.
+        let mut keys = w.finish(false)?;
+        for r in merged {
+            let _ = std::fs::remove_file(&r.state.path);
         }
-        self.base_is_temp = true;
-
+        keys.sort_unstable();
+        keys.dedup();
+        let filter = xorf::BinaryFuse8::try_from(&keys).ok();
+        self.runs.push(Run {
+            state: ElementState::open(&path)?,
+            filter,
+        });
         Ok(())
     }
 
@@ -799,8 +934,14 @@ impl ElementStateTx {
         }
         let temp = self.temp_path("new");
         let mut w = StateWriter::create(&temp)?;
-        self.merge_into(&mut w)?;
-        w.finish()?;
+        let staged = self.take_staged();
+        let mut sources: Vec<Source<'_>> = vec![Box::new(self.base.sequential(0))];
+        for r in &self.runs {
+            sources.push(Box::new(r.state.sequential(0)));
+        }
+        sources.push(staged);
+        merge(sources, &mut w, false)?;
+        w.finish(true)?;
         Ok(Some(generations::publish(
             &temp,
             &self.prefix,
@@ -812,8 +953,8 @@ impl ElementStateTx {
 impl Drop for ElementStateTx {
     fn drop(&mut self) {
         // Temporary files only; the committed generation is never touched.
-        if self.base_is_temp {
-            let _ = std::fs::remove_file(&self.base.path);
+        for r in &self.runs {
+            let _ = std::fs::remove_file(&r.state.path);
         }
     }
 }
@@ -888,9 +1029,11 @@ mod tests {
                     assert_eq!(tx.contains(t, id).unwrap(), model.contains_key(&key(t, id)));
                 }
             }
+            // More spills than MAX_RUNS: runs were also merged into one.
             assert!(
-                tx.base_is_temp,
-                "ingest {ingest} merged into a temporary file"
+                !tx.runs.is_empty() && tx.temp_seq as usize > MAX_RUNS,
+                "ingest {ingest} spilled {} runs",
+                tx.temp_seq
             );
             let prepared = tx.prepare().unwrap().unwrap();
             committed = prepared.generation();

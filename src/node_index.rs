@@ -160,14 +160,23 @@ pub struct NodeIndex {
     /// Copies of blocks read recently. The nodes of a way usually have neighbouring ids, and
     /// the ways of an area share nodes, so most lookups find their block here.
     cache: RefCell<BlockCache>,
+    /// Slots of `cache` (fewer for an ingest's runs, which share the memory bound).
+    cache_slots: usize,
+    /// For an ingest's run: a filter of its ids, so that a lookup of a node it does not hold
+    /// (most lookups, with several runs) reads nothing.
+    filter: Option<xorf::BinaryFuse8>,
 }
+
+/// Cache slots of each run of an ingest ([`NodeIndexTx`]): at most [`MAX_RUNS`] of them
+/// together hold as much as the committed index's cache.
+const RUN_CACHE_SLOTS: usize = CACHE_SLOTS / MAX_RUNS;
 
 /// Blocks held by the cache: at most this many (4 KiB each, 64 MiB in all: an index of 4
 /// million nodes fits whole).
 const CACHE_SLOTS: usize = 16_384;
 
 /// A direct-mapped cache of blocks of the file: block `b` can only sit in slot
-/// `b % CACHE_SLOTS`. Slot memory is allocated zeroed and untouched until used.
+/// `b % slots`. Slot memory is allocated zeroed and untouched until used.
 #[derive(Debug, Default)]
 struct BlockCache {
     /// Per slot, the block it holds (`usize::MAX`: none) and its entry count.
@@ -183,12 +192,12 @@ impl BlockCache {
     const SLOT_BYTES: usize = BLOCK_ENTRIES * ENTRY_BYTES as usize;
 
     /// The bytes of block `b` if cached, else `None` and the slot to fill.
-    fn slot(&mut self, b: usize) -> (usize, bool) {
+    fn slot(&mut self, b: usize, slots: usize) -> (usize, bool) {
         if self.tags.is_empty() {
-            self.tags = vec![(usize::MAX, 0); CACHE_SLOTS];
-            self.bytes = vec![0; CACHE_SLOTS * Self::SLOT_BYTES];
+            self.tags = vec![(usize::MAX, 0); slots];
+            self.bytes = vec![0; slots * Self::SLOT_BYTES];
         }
-        let k = b % CACHE_SLOTS;
+        let k = b % self.tags.len();
         (k, self.tags[k].0 == b)
     }
 
@@ -208,6 +217,8 @@ impl NodeIndex {
             count: 0,
             dir: Vec::new(),
             cache: RefCell::default(),
+            cache_slots: CACHE_SLOTS,
+            filter: None,
         }
     }
 
@@ -294,6 +305,8 @@ impl NodeIndex {
             count,
             dir,
             cache: RefCell::default(),
+            cache_slots: CACHE_SLOTS,
+            filter: None,
         })
     }
 
@@ -321,6 +334,12 @@ impl NodeIndex {
         let Some(file) = &self.file else {
             return Ok(None);
         };
+        if self.filter.as_ref().is_some_and(|f| {
+            use xorf::Filter;
+            !f.contains(&(id as u64))
+        }) {
+            return Ok(None);
+        }
         let mut cache = self.cache.borrow_mut();
         // Neighbouring lookups (the nodes of a way) usually fall in the block of the last one.
         let last = cache.last_block;
@@ -340,7 +359,7 @@ impl NodeIndex {
         let Some(offset) = id.checked_sub(base).and_then(|d| u32::try_from(d).ok()) else {
             return Ok(None);
         };
-        let (k, hit) = cache.slot(b);
+        let (k, hit) = cache.slot(b, self.cache_slots);
         if !hit {
             let n = usize::try_from(self.block_end(b) - first)
                 .unwrap_or(usize::MAX)
@@ -526,8 +545,9 @@ impl IndexWriter {
         Ok(())
     }
 
-    /// Writes the directory and header and syncs the file to disk.
-    fn finish(mut self) -> Result<(), NodeIndexError> {
+    /// Writes the directory and header, and syncs the file to disk if asked (a temporary run
+    /// or base never outlives its ingest and is not synced).
+    fn finish(mut self, sync: bool) -> Result<(), NodeIndexError> {
         let err = io_err(&self.path);
         for &(base, first) in &self.dir {
             self.out.write_all(&base.to_le_bytes()).map_err(&err)?;
@@ -545,7 +565,10 @@ impl IndexWriter {
             .map_err(&err)?;
         file.seek(SeekFrom::Start(0)).map_err(&err)?;
         file.write_all(&header).map_err(&err)?;
-        file.sync_all().map_err(&err)
+        if sync {
+            file.sync_all().map_err(&err)?;
+        }
+        Ok(())
     }
 }
 
@@ -699,11 +722,16 @@ impl NodeIndexTx {
         }
         let path = self.temp_path("run");
         let mut w = IndexWriter::create(&path)?;
+        // Ids are distinct within a run.
+        let ids: Vec<u64> = sorted.iter().map(|&(id, _)| id as u64).collect();
         for (id, e) in sorted {
             w.push(id, e)?;
         }
-        w.finish()?;
-        self.runs.push(NodeIndex::open(&path)?);
+        w.finish(false)?;
+        let mut run = NodeIndex::open(&path)?;
+        run.cache_slots = RUN_CACHE_SLOTS;
+        run.filter = xorf::BinaryFuse8::try_from(&ids).ok();
+        self.runs.push(run);
         Ok(())
     }
 
@@ -726,7 +754,7 @@ impl NodeIndexTx {
                 sources.push(Box::new(r.iter()?));
             }
             merge_into(sources, &mut w)?;
-            w.finish()?;
+            w.finish(false)?;
             let old_base = std::mem::replace(&mut self.base, NodeIndex::open(&path)?);
             if self.base_is_temp {
                 let _ = std::fs::remove_file(&old_base.path);
@@ -792,7 +820,7 @@ impl NodeIndexTx {
         sources.push(Box::new(std::mem::take(&mut self.tail).into_iter().map(Ok)));
         sources.push(Box::new(overlay.into_iter().map(Ok)));
         merge_into(sources, &mut w)?;
-        w.finish()?;
+        w.finish(true)?;
         Ok(Some(generations::publish(
             &temp,
             &self.prefix,
