@@ -218,6 +218,33 @@ fn read_record(
     Ok(Some(((t, id), body)))
 }
 
+/// Decodes a body into `row`, reusing its buffers (an ingest looks up rows by the million).
+fn decode_into(body: &[u8], row: &mut Row) -> Option<()> {
+    let mut c = Cursor { data: body, at: 0 };
+    row.version = c.signed()?;
+    row.ts = c.signed()?;
+    let flags = c.byte()?;
+    row.visible = flags & VISIBLE != 0;
+    row.pos = if flags & HAS_POS != 0 {
+        let lat = i32::try_from(c.signed()?).ok()?;
+        let lon = i32::try_from(c.signed()?).ok()?;
+        Some((lat, lon))
+    } else {
+        None
+    };
+    row.tags.clear();
+    row.tags.push_str(std::str::from_utf8(c.bytes()?).ok()?);
+    if flags & HAS_REFS != 0 {
+        let refs = c.bytes()?;
+        let v = row.refs.get_or_insert_with(Vec::new);
+        v.clear();
+        v.extend_from_slice(refs);
+    } else {
+        row.refs = None;
+    }
+    (c.at == body.len()).then_some(())
+}
+
 fn decode(body: &[u8]) -> Option<Row> {
     let mut c = Cursor { data: body, at: 0 };
     let version = c.signed()?;
@@ -784,7 +811,8 @@ impl ElementStateTx {
 
     /// Finds an element's encoded row, staged, in a run or committed, and hands it to `f`.
     /// Newest first: the first row found that replaces is the answer; rows marked "if absent"
-    /// yield to any older row, so the oldest of them is the answer when no row replaces.
+    /// yield to any older row, so the oldest of them is the answer when no row replaces. The
+    /// answer is always the last row handed to `f` ([`ElementStateTx::get_into`] relies on it).
     fn find<R>(
         &self,
         key: Key,
@@ -822,6 +850,26 @@ impl ElementStateTx {
                 message: "row unreadable".to_owned(),
             }),
             None => Ok(None),
+        }
+    }
+
+    /// Like [`ElementStateTx::get`], into `row` (its buffers reused); whether there is a state.
+    ///
+    /// # Errors
+    /// When a state file is damaged.
+    pub fn get_into(
+        &self,
+        t: ElementType,
+        id: i64,
+        row: &mut Row,
+    ) -> Result<bool, ElementStateError> {
+        match self.find(key(t, id), |b| decode_into(b, row).is_some())? {
+            Some(true) => Ok(true),
+            Some(false) => Err(ElementStateError::Damaged {
+                path: self.base.path.clone(),
+                message: "row unreadable".to_owned(),
+            }),
+            None => Ok(false),
         }
     }
 

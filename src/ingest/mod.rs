@@ -44,7 +44,7 @@ use crate::node_index::{NodeEntry, NodeIndexTx};
 use crate::progress::Progress;
 use crate::store::edit_log::{BlockBuilder, EditRef, PrevRef};
 use crate::store::{
-    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs, IngestTx, Prev,
+    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs, IngestTx,
     Store, StoreError, Work,
 };
 use replication::{Replication, SequenceRange};
@@ -579,6 +579,7 @@ pub fn ingest_extended(
             work: HashMap::default(),
             current: None,
             squares: Squares::default(),
+            stored: crate::element_state::Row::default(),
         };
         let root = loop {
             match rx.recv() {
@@ -902,6 +903,19 @@ struct Writer<'a, 'b> {
     /// The changeset of the last edit and its work, not yet in `work`.
     current: Option<(i64, Work)>,
     squares: Squares,
+    /// The buffers of the last element state looked up, reused.
+    stored: crate::element_state::Row,
+}
+
+/// The state an edit replaces, as stored before it (borrowed from the element state's row, or
+/// from the node-location index's entry).
+struct Prev<'a> {
+    version: i64,
+    /// Unknown for untagged nodes, which only the node-location index holds.
+    ts: Option<i64>,
+    tags: &'a str,
+    pos: Option<(i32, i32)>,
+    refs: Option<&'a [u8]>,
 }
 
 /// First-node times of `grid_first` squares found in one input, in tiles of 64 × 64 squares
@@ -1106,6 +1120,19 @@ impl Writer<'_, '_> {
     /// Applies one element version. Node positions go to the node-location index; `elements`
     /// keeps ways, relations and nodes that carry (or carried) tags.
     fn element(&mut self, op: Option<Op>, el: &Element) -> Result<(), StoreError> {
+        let mut stored = std::mem::take(&mut self.stored);
+        let applied = self.element_with(op, el, &mut stored);
+        self.stored = stored;
+        applied
+    }
+
+    /// [`Writer::element`] with `stored` to look the element state up into.
+    fn element_with(
+        &mut self,
+        op: Option<Op>,
+        el: &Element,
+        stored_row: &mut crate::element_state::Row,
+    ) -> Result<(), StoreError> {
         let t = el.etype;
         self.elements += 1;
         let pos = el.pos;
@@ -1137,24 +1164,26 @@ impl Writer<'_, '_> {
         } else {
             None
         };
-        let stored = if fresh || indexed.is_some_and(|i| !i.has_row) {
+        let stored = if fresh
+            || indexed.is_some_and(|i| !i.has_row)
+            || !self.state.get_into(t, el.id, stored_row)?
+        {
             None
         } else {
-            self.state.get(t, el.id)?.map(|r| Prev {
+            let r = &*stored_row;
+            Some(Prev {
                 version: r.version,
                 ts: Some(r.ts),
-                tags: r.tags,
-                lat_e7: r.pos.map(|p| p.0),
-                lon_e7: r.pos.map(|p| p.1),
-                refs: r.refs,
+                tags: &r.tags,
+                pos: r.pos,
+                refs: r.refs.as_deref(),
             })
         };
         let from_index = |i: NodeEntry| Prev {
             version: i64::from(i.version),
             ts: None,
-            tags: String::new(),
-            lat_e7: Some(i.coord.lat_e7()),
-            lon_e7: Some(i.coord.lon_e7()),
+            tags: "",
+            pos: Some((i.coord.lat_e7(), i.coord.lon_e7())),
             refs: None,
         };
         let has_row = stored.is_some();
@@ -1196,8 +1225,8 @@ impl Writer<'_, '_> {
                 prev: replaced.map(|p| PrevRef {
                     version: p.version,
                     ts: p.ts,
-                    tags: &p.tags,
-                    pos: p.lat_e7.zip(p.lon_e7),
+                    tags: p.tags,
+                    pos: p.pos,
                 }),
             });
             self.edits += 1;
@@ -1234,7 +1263,7 @@ impl Writer<'_, '_> {
         // Keep the last known position, tags and refs of a deleted element: they place the
         // deletion and say what was deleted.
         let keep = prev.as_ref().filter(|_| deleted);
-        let keep_pos = pos.or_else(|| keep.and_then(|p| Some((p.lat_e7?, p.lon_e7?))));
+        let keep_pos = pos.or_else(|| keep.and_then(|p| p.pos));
         if is_node {
             let writes_row = newer && (has_row || !(deleted || el.tags.is_empty()));
             self.stage(el.id, keep_pos, el.version, has_row || writes_row)?;
@@ -1248,8 +1277,8 @@ impl Writer<'_, '_> {
                 ts: el.timestamp,
                 visible: false,
                 pos: keep_pos,
-                tags: keep.map_or("", |p| p.tags.as_str()),
-                refs: keep.and_then(|p| p.refs.as_deref()),
+                tags: keep.map_or("", |p| p.tags),
+                refs: keep.and_then(|p| p.refs),
             }
         } else {
             RowRef {

@@ -974,18 +974,6 @@ impl Work {
     }
 }
 
-/// Previous state of an element, as stored before an edit replaced it.
-#[derive(Debug, Clone, Default)]
-pub struct Prev {
-    pub version: i64,
-    /// Unknown for untagged nodes, which only the node-location index holds.
-    pub ts: Option<i64>,
-    pub tags: String,
-    pub lat_e7: Option<i32>,
-    pub lon_e7: Option<i32>,
-    pub refs: Option<Vec<u8>>,
-}
-
 /// One ingest's write transaction.
 pub struct IngestTx<'a> {
     tx: Transaction<'a>,
