@@ -556,8 +556,8 @@ struct StateWriter {
     last: Option<Key>,
     rows: u64,
     scratch: Vec<u8>,
-    /// When set, the filter key of every row written (for a run's filter).
-    filter_keys: Option<Vec<u64>>,
+    /// When set, a filter of the keys written (a run's).
+    filter: Option<fastbloom::BloomFilter>,
 }
 
 impl StateWriter {
@@ -576,7 +576,7 @@ impl StateWriter {
             last: None,
             rows: 0,
             scratch: Vec::with_capacity(64),
-            filter_keys: None,
+            filter: None,
         })
     }
 
@@ -602,15 +602,15 @@ impl StateWriter {
         self.at += self.scratch.len() + body.len();
         self.last = Some(key);
         self.rows += 1;
-        if let Some(keys) = &mut self.filter_keys {
-            keys.push(filter_key(key));
+        if let Some(f) = &mut self.filter {
+            f.insert_hash(filter_key(key));
         }
         Ok(())
     }
 
-    /// Writes the directory and footer, syncs the file if asked, and returns the filter keys
-    /// collected (none unless asked for).
-    fn finish(mut self, sync: bool) -> Result<Vec<u64>, ElementStateError> {
+    /// Writes the directory and footer, syncs the file if asked, and returns the filter of the
+    /// keys written, if one was asked for.
+    fn finish(mut self, sync: bool) -> Result<Option<fastbloom::BloomFilter>, ElementStateError> {
         let e = io_err(&self.path);
         let dir_at = self.at as u64;
         for &((t, id), off) in &self.dir {
@@ -628,7 +628,7 @@ impl StateWriter {
         if sync {
             file.sync_all().map_err(&e)?;
         }
-        Ok(self.filter_keys.take().unwrap_or_default())
+        Ok(self.filter.take())
     }
 }
 
@@ -671,18 +671,18 @@ fn mark_if_absent(body: &mut [u8], on: bool) {
     }
 }
 
-/// The filter key of an element key (distinct keys may share one: a filter only says "maybe").
+/// The filter hash of an element key.
 fn filter_key((t, id): Key) -> u64 {
     use std::hash::BuildHasher;
     foldhash::fast::FixedState::with_seed(0x6865_7876).hash_one((t, id))
 }
 
-/// Staged rows spilled to a sorted temporary file during one ingest, with a filter of its keys
-/// so that most lookups of elements it does not hold read nothing.
+/// Staged rows spilled to a sorted temporary file during one ingest, with a Bloom filter of its
+/// keys so that most lookups of elements it does not hold read nothing.
 struct Run {
     state: ElementState,
-    /// `None` when the filter could not be built (then every lookup reads the file).
-    filter: Option<xorf::BinaryFuse8>,
+    /// `None` only for a run written without one (then every lookup reads the file).
+    filter: Option<fastbloom::BloomFilter>,
 }
 
 impl Run {
@@ -692,11 +692,10 @@ impl Run {
         key: Key,
         f: &mut impl FnMut(&[u8]) -> R,
     ) -> Result<Option<(bool, R)>, ElementStateError> {
-        use xorf::Filter;
         if self
             .filter
             .as_ref()
-            .is_some_and(|fl| !fl.contains(&filter_key(key)))
+            .is_some_and(|f| !f.contains_hash(filter_key(key)))
         {
             return Ok(None);
         }
@@ -706,6 +705,8 @@ impl Run {
 
 /// Most runs an ingest keeps before merging them into one (a lookup may read each).
 const MAX_RUNS: usize = 8;
+/// The false-positive rate of a run's filter (about 10 bits per key).
+pub(crate) const FILTER_FALSE_POSITIVES: f64 = 0.01;
 
 /// One input of a merge: records in key order, each with its "if absent" mark.
 type Source<'a> = Box<dyn Iterator<Item = Result<(Key, Vec<u8>), ElementStateError>> + 'a>;
@@ -943,12 +944,16 @@ impl ElementStateTx {
     fn spill(&mut self) -> Result<(), ElementStateError> {
         let path = self.temp_path("run");
         let mut w = StateWriter::create(&path)?;
-        w.filter_keys = Some(Vec::new());
         let merged = if self.runs.len() + 1 >= MAX_RUNS {
             std::mem::take(&mut self.runs)
         } else {
             Vec::new()
         };
+        let most = merged.iter().map(|r| r.state.len()).sum::<u64>() + self.staged.len() as u64;
+        w.filter = Some(
+            fastbloom::BloomFilter::with_false_pos(FILTER_FALSE_POSITIVES)
+                .expected_items(usize::try_from(most).unwrap_or(usize::MAX).max(1)),
+        );
         let mut sources: Vec<Source<'_>> = merged
             .iter()
             .map(|r| Box::new(r.state.sequential(0)) as Source<'_>)
@@ -956,13 +961,10 @@ impl ElementStateTx {
         sources.push(self.take_staged());
         merge(sources, &mut w, true)?;
         // Runs never outlive the ingest: no sync.
-        let mut keys = w.finish(false)?;
+        let filter = w.finish(false)?;
         for r in merged {
             let _ = std::fs::remove_file(&r.state.path);
         }
-        keys.sort_unstable();
-        keys.dedup();
-        let filter = xorf::BinaryFuse8::try_from(&keys).ok();
         self.runs.push(Run {
             state: ElementState::open(&path)?,
             filter,
@@ -1088,6 +1090,10 @@ mod tests {
             prepared.committed();
             let state = ElementState::open_generation(&prefix, committed).unwrap();
             assert_eq!(state.len(), model.len() as u64);
+            // The "if absent" mark of the runs never reaches a committed file.
+            assert!(state
+                .sequential(0)
+                .all(|r| r.is_ok_and(|(_, body)| !is_if_absent(&body))));
             for (&(code, id), row) in &model {
                 let t = TYPES[usize::from(code)];
                 assert_eq!(state.get(t, id).unwrap().as_ref(), Some(row));

@@ -31,9 +31,12 @@ const ENTRY_BYTES: u64 = 16;
 const DIR_BYTES: u64 = 16;
 const HEADER_BYTES: u64 = 64;
 const MAGIC: &[u8; 8] = b"HXVNODE1";
-/// Staged entries held in memory before they are sorted and written out as a run (about 100 MB
-/// of hash map at this size).
+/// Entries staged in id order (a plain vector, 96 MB at this size) before they are written out
+/// as a run; the hash map of entries staged out of order has its own bound, [`OVERLAY_ENTRIES`].
 pub const DEFAULT_RUN_ENTRIES: usize = 4 << 20;
+/// Entries staged out of order (in the hash map) before they are written out as a run: 7/8 of
+/// 2^21, the most a table of 2^21 buckets (about 52 MB) holds, so it never doubles past that.
+const OVERLAY_ENTRIES: usize = 7 << 18;
 /// Runs kept beside the base before they are merged into a new base, which bounds the number
 /// of positioned reads per lookup during an ingest.
 const MAX_RUNS: usize = 16;
@@ -164,7 +167,13 @@ pub struct NodeIndex {
     cache_slots: usize,
     /// For an ingest's run: a filter of its ids, so that a lookup of a node it does not hold
     /// (most lookups, with several runs) reads nothing.
-    filter: Option<xorf::BinaryFuse8>,
+    filter: Option<fastbloom::BloomFilter>,
+}
+
+/// The hash of a node id in a run's filter.
+fn filter_hash(id: i64) -> u64 {
+    use std::hash::BuildHasher;
+    foldhash::fast::FixedState::with_seed(0x6e6f_6465).hash_one(id)
 }
 
 /// Cache slots of each run of an ingest ([`NodeIndexTx`]): at most [`MAX_RUNS`] of them
@@ -334,10 +343,11 @@ impl NodeIndex {
         let Some(file) = &self.file else {
             return Ok(None);
         };
-        if self.filter.as_ref().is_some_and(|f| {
-            use xorf::Filter;
-            !f.contains(&(id as u64))
-        }) {
+        if self
+            .filter
+            .as_ref()
+            .is_some_and(|f| !f.contains_hash(filter_hash(id)))
+        {
             return Ok(None);
         }
         let mut cache = self.cache.borrow_mut();
@@ -657,7 +667,9 @@ impl NodeIndexTx {
             base: NodeIndex::open_generation(prefix, committed)?,
             base_is_temp: false,
             runs: Vec::new(),
-            tail: Vec::new(),
+            // Reserved whole (pages are only touched as entries arrive): growing by doubling
+            // would hold the old and the new copy at once.
+            tail: Vec::with_capacity(run_entries.clamp(1, DEFAULT_RUN_ENTRIES)),
             fence: Vec::new(),
             overlay: foldhash::HashMap::default(),
             overlay_max: i64::MIN,
@@ -710,7 +722,7 @@ impl NodeIndexTx {
                 v.insert(entry);
             }
         }
-        if self.overlay.len() >= self.run_entries {
+        if self.overlay.len() >= self.run_entries.min(OVERLAY_ENTRIES) {
             self.spill()?;
         }
         Ok(())
@@ -722,15 +734,17 @@ impl NodeIndexTx {
         }
         let path = self.temp_path("run");
         let mut w = IndexWriter::create(&path)?;
-        // Ids are distinct within a run.
-        let ids: Vec<u64> = sorted.iter().map(|&(id, _)| id as u64).collect();
+        let mut filter =
+            fastbloom::BloomFilter::with_false_pos(crate::element_state::FILTER_FALSE_POSITIVES)
+                .expected_items(sorted.len());
         for (id, e) in sorted {
             w.push(id, e)?;
+            filter.insert_hash(filter_hash(id));
         }
         w.finish(false)?;
         let mut run = NodeIndex::open(&path)?;
         run.cache_slots = RUN_CACHE_SLOTS;
-        run.filter = xorf::BinaryFuse8::try_from(&ids).ok();
+        run.filter = Some(filter);
         self.runs.push(run);
         Ok(())
     }
@@ -738,12 +752,11 @@ impl NodeIndexTx {
     /// Writes the staged entries out as runs (the tail first: the overlay is later), and
     /// merges the runs into a new temporary base when there are too many.
     fn spill(&mut self) -> Result<(), NodeIndexError> {
-        let tail = std::mem::take(&mut self.tail);
+        let tail = std::mem::replace(&mut self.tail, Vec::with_capacity(self.run_entries));
         self.fence.clear();
         self.write_run(tail)?;
         let mut sorted: Vec<(i64, NodeEntry)> = self.overlay.drain().collect();
         self.overlay_max = i64::MIN;
-        self.overlay.shrink_to(self.run_entries.min(1 << 16));
         sorted.sort_unstable_by_key(|e| e.0);
         self.write_run(sorted)?;
         if self.runs.len() > MAX_RUNS {
