@@ -637,12 +637,22 @@ pub fn ingest_extended(
         Ok(())
     })?;
     // The index file of the next generation is complete and in place before the database
-    // names it; until the commit the database still names the previous one.
-    let prepared = nodes.prepare().map_err(StoreError::from)?;
+    // names it; until the commit the database still names the previous one. The two files
+    // are independent: each is merged on its own thread (a core each when there are two).
+    let (prepared, prepared_state) = std::thread::scope(|scope| {
+        let nodes = scope.spawn(move || nodes.prepare());
+        let state = state.prepare();
+        // A panic there is a bug, not bad input: it goes on as one here.
+        let nodes = nodes
+            .join()
+            .unwrap_or_else(|p| std::panic::resume_unwind(p));
+        (nodes, state)
+    });
+    let prepared = prepared.map_err(StoreError::from)?;
+    let prepared_state = prepared_state.map_err(StoreError::from)?;
     if let Some(p) = &prepared {
         tx.set_node_generation(p.generation())?;
     }
-    let prepared_state = state.prepare().map_err(StoreError::from)?;
     if let Some(p) = &prepared_state {
         tx.set_elements_generation(p.generation())?;
     }
