@@ -738,8 +738,8 @@ fn merge(
         }
         for (i, h) in heads.iter_mut().enumerate() {
             if h.as_ref().is_some_and(|(k, _)| *k == min) {
-                let (_, mut body) = std::mem::replace(h, sources[i].next().transpose()?)
-                    .unwrap_or_default();
+                let (_, mut body) =
+                    std::mem::replace(h, sources[i].next().transpose()?).unwrap_or_default();
                 if chosen.is_some_and(|(c, _)| c == i) {
                     if !keep_marks {
                         mark_if_absent(&mut body, false);

@@ -44,8 +44,8 @@ use crate::node_index::{NodeEntry, NodeIndexTx};
 use crate::progress::Progress;
 use crate::store::edit_log::{BlockBuilder, EditRef, PrevRef};
 use crate::store::{
-    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs, IngestTx,
-    Store, StoreError, Work,
+    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs, IngestTx, Store,
+    StoreError, Work,
 };
 use replication::{Replication, SequenceRange};
 use xml::{OsmSink, RawChangeset, RawElement, ReadError, Root, SinkError};
