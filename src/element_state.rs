@@ -179,10 +179,12 @@ impl<'a> Cursor<'a> {
     }
 }
 
-/// The next record from a reader: `Ok(None)` at a clean end, `Err(None)` when cut short.
-fn read_record(
+/// The next record from a reader, its body into `body`: its key, `Ok(None)` at a clean end,
+/// `Err(None)` when cut short.
+fn read_record_into(
     r: &mut impl std::io::Read,
-) -> Result<Option<(Key, Vec<u8>)>, Option<std::io::Error>> {
+    body: &mut Vec<u8>,
+) -> Result<Option<Key>, Option<std::io::Error>> {
     let mut byte = [0u8; 1];
     let mut next = |r: &mut dyn std::io::Read| -> Result<u8, Option<std::io::Error>> {
         match r.read_exact(&mut byte) {
@@ -212,10 +214,11 @@ fn read_record(
     if n > 1 << 30 {
         return Err(None);
     }
-    let mut body = vec![0u8; n];
-    r.read_exact(&mut body)
+    body.clear();
+    body.resize(n, 0);
+    r.read_exact(body)
         .map_err(|e| (e.kind() != std::io::ErrorKind::UnexpectedEof).then_some(e))?;
-    Ok(Some(((t, id), body)))
+    Ok(Some((t, id)))
 }
 
 /// Decodes a body into `row`, reusing its buffers (an ingest looks up rows by the million).
@@ -501,33 +504,78 @@ impl ElementState {
         &self,
         first: usize,
     ) -> impl Iterator<Item = Result<(Key, Vec<u8>), ElementStateError>> + '_ {
-        let start = self.dir.get(first).map_or(self.blocks_end, |d| d.1);
-        let mut reader = self.file.as_ref().map(|file| {
-            std::io::Read::take(
-                std::io::BufReader::with_capacity(
-                    1 << 20,
-                    ReadAt {
-                        file,
-                        at: start as u64,
-                    },
-                ),
-                (self.blocks_end - start) as u64,
-            )
-        });
+        let mut records = self.records(first);
         std::iter::from_fn(move || {
-            let r = reader.as_mut()?;
-            match read_record(r) {
-                Ok(Some(rec)) => Some(Ok(rec)),
-                Ok(None) => None,
-                Err(e) => Some(Err(match e {
-                    Some(io) => ElementStateError::Io {
-                        path: self.path.clone(),
-                        source: io,
-                    },
-                    None => self.damaged("record cut short"),
-                })),
-            }
+            let mut body = Vec::new();
+            records
+                .next_into(&mut body)
+                .transpose()
+                .map(|k| k.map(|k| (k, body)))
         })
+    }
+
+    /// Every record from block `first` on, in key order, for reading into a reused buffer.
+    fn records(&self, first: usize) -> FileRecords<'_> {
+        let start = self.dir.get(first).map_or(self.blocks_end, |d| d.1);
+        FileRecords {
+            state: self,
+            reader: self.file.as_ref().map(|file| {
+                std::io::Read::take(
+                    std::io::BufReader::with_capacity(
+                        1 << 20,
+                        ReadAt {
+                            file,
+                            at: start as u64,
+                        },
+                    ),
+                    (self.blocks_end - start) as u64,
+                )
+            }),
+        }
+    }
+}
+
+/// A state file's records in key order, read with buffered reads ([`ElementState::records`]).
+struct FileRecords<'a> {
+    state: &'a ElementState,
+    reader: Option<std::io::Take<std::io::BufReader<ReadAt<'a>>>>,
+}
+
+/// One input of a merge: records in key order, each body read into a buffer the merge reuses
+/// (no allocation per record).
+trait Records {
+    /// Reads the next record's body into `body` and returns its key; `None` at the end.
+    fn next_into(&mut self, body: &mut Vec<u8>) -> Result<Option<Key>, ElementStateError>;
+}
+
+impl Records for FileRecords<'_> {
+    fn next_into(&mut self, body: &mut Vec<u8>) -> Result<Option<Key>, ElementStateError> {
+        let Some(r) = self.reader.as_mut() else {
+            return Ok(None);
+        };
+        read_record_into(r, body).map_err(|e| match e {
+            Some(io) => ElementStateError::Io {
+                path: self.state.path.clone(),
+                source: io,
+            },
+            None => self.state.damaged("record cut short"),
+        })
+    }
+}
+
+/// The staged rows in key order, read out of the arena.
+struct StagedRecords {
+    rows: std::vec::IntoIter<(Key, Staged)>,
+    arena: Vec<u8>,
+}
+
+impl Records for StagedRecords {
+    fn next_into(&mut self, body: &mut Vec<u8>) -> Result<Option<Key>, ElementStateError> {
+        Ok(self.rows.next().map(|(k, s)| {
+            body.clear();
+            body.extend_from_slice(self.arena.get(s.range()).unwrap_or(&[]));
+            k
+        }))
     }
 }
 
@@ -708,8 +756,8 @@ const MAX_RUNS: usize = 8;
 /// The false-positive rate of a run's filter (about 10 bits per key).
 pub(crate) const FILTER_FALSE_POSITIVES: f64 = 0.01;
 
-/// One input of a merge: records in key order, each with its "if absent" mark.
-type Source<'a> = Box<dyn Iterator<Item = Result<(Key, Vec<u8>), ElementStateError>> + 'a>;
+/// One input of a merge (bodies carry their "if absent" mark).
+type Source<'a> = Box<dyn Records + 'a>;
 
 /// Merges `sources`, oldest first, into `out`. Of an element's rows the newest that replaces
 /// wins; failing one, the oldest "if absent" row (it applied to an element with no state, and
@@ -720,32 +768,27 @@ fn merge(
     out: &mut StateWriter,
     keep_marks: bool,
 ) -> Result<(), ElementStateError> {
-    let mut heads: Vec<Option<(Key, Vec<u8>)>> = Vec::with_capacity(sources.len());
-    for s in &mut sources {
-        heads.push(s.next().transpose()?);
+    let mut bodies: Vec<Vec<u8>> = vec![Vec::new(); sources.len()];
+    let mut heads: Vec<Option<Key>> = Vec::with_capacity(sources.len());
+    for (s, body) in sources.iter_mut().zip(&mut bodies) {
+        heads.push(s.next_into(body)?);
     }
-    while let Some(min) = heads.iter().flatten().map(|h| h.0).min() {
-        let mut chosen: Option<(usize, bool)> = None;
+    while let Some(min) = heads.iter().flatten().min().copied() {
+        let mut chosen: Option<usize> = None;
         for (i, h) in heads.iter().enumerate() {
-            if let Some((k, body)) = h {
-                if *k == min {
-                    let if_absent = is_if_absent(body);
-                    if !if_absent || chosen.is_none() {
-                        chosen = Some((i, if_absent));
-                    }
-                }
+            if *h == Some(min) && (chosen.is_none() || !is_if_absent(&bodies[i])) {
+                chosen = Some(i);
             }
         }
-        for (i, h) in heads.iter_mut().enumerate() {
-            if h.as_ref().is_some_and(|(k, _)| *k == min) {
-                let (_, mut body) =
-                    std::mem::replace(h, sources[i].next().transpose()?).unwrap_or_default();
-                if chosen.is_some_and(|(c, _)| c == i) {
-                    if !keep_marks {
-                        mark_if_absent(&mut body, false);
-                    }
-                    out.push(min, &body)?;
-                }
+        if let Some(c) = chosen {
+            if !keep_marks {
+                mark_if_absent(&mut bodies[c], false);
+            }
+            out.push(min, &bodies[c])?;
+        }
+        for ((h, s), body) in heads.iter_mut().zip(&mut sources).zip(&mut bodies) {
+            if *h == Some(min) {
+                *h = s.next_into(body)?;
             }
         }
     }
@@ -926,17 +969,16 @@ impl ElementStateTx {
         Ok(())
     }
 
-    /// The staged rows in key order (bodies copied), emptying the stage.
+    /// The staged rows in key order, emptying the stage.
     fn take_staged(&mut self) -> Source<'static> {
         let mut staged: Vec<(Key, Staged)> = std::mem::take(&mut self.staged).into_iter().collect();
         staged.sort_unstable_by_key(|s| s.0);
         let arena = std::mem::take(&mut self.arena);
         self.arena = Vec::with_capacity(arena.capacity());
-        Box::new(
-            staged
-                .into_iter()
-                .map(move |(k, s)| Ok((k, arena.get(s.range()).unwrap_or(&[]).to_vec()))),
-        )
+        Box::new(StagedRecords {
+            rows: staged.into_iter(),
+            arena,
+        })
     }
 
     /// Writes the staged rows, sorted, to a new temporary run, emptying memory. Once there
@@ -956,7 +998,7 @@ impl ElementStateTx {
         );
         let mut sources: Vec<Source<'_>> = merged
             .iter()
-            .map(|r| Box::new(r.state.sequential(0)) as Source<'_>)
+            .map(|r| Box::new(r.state.records(0)) as Source<'_>)
             .collect();
         sources.push(self.take_staged());
         merge(sources, &mut w, true)?;
@@ -985,9 +1027,9 @@ impl ElementStateTx {
         let temp = self.temp_path("new");
         let mut w = StateWriter::create(&temp)?;
         let staged = self.take_staged();
-        let mut sources: Vec<Source<'_>> = vec![Box::new(self.base.sequential(0))];
+        let mut sources: Vec<Source<'_>> = vec![Box::new(self.base.records(0))];
         for r in &self.runs {
-            sources.push(Box::new(r.state.sequential(0)));
+            sources.push(Box::new(r.state.records(0)));
         }
         sources.push(staged);
         merge(sources, &mut w, false)?;
