@@ -21,6 +21,7 @@
 
 pub mod edit_log;
 pub mod log_file;
+pub mod window;
 
 use std::cell::RefCell;
 use std::path::{Path, PathBuf};
