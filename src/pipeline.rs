@@ -346,6 +346,11 @@ pub fn count(
         ..
     } = times;
     let carried = carried_changesets(from, &parts, changeset_hours);
+    // Read before the loading thread starts: reading every changeset's comment for the revert
+    // index is the report's largest passing need (SQLite sorts the whole changesets table), and
+    // it would otherwise come on top of the loading thread's node-index cache and first parts.
+    let reverts = RevertIndex::load(store)?;
+    let existing = ExistingData::load(store)?;
     std::thread::scope(|scope| {
         // A second connection loads and places the edits, one part ahead of the counting
         // below (a core each when there are two). The hand-over waits for the receiver, so at
@@ -362,6 +367,8 @@ pub fn count(
             mapper_first: &mapper_first,
             hourly: &hourly,
             details_from: weeks.details_from.start_unix(),
+            reverts: &reverts,
+            existing: &existing,
         };
         count_loaded(store, &rx, &window, land, fold_into, opts, progress)
     })
@@ -432,7 +439,7 @@ fn carried_changesets(
         .collect()
 }
 
-/// The window [`count`] counts and how it is split.
+/// The window [`count`] counts, how it is split, and what is read once for it.
 struct Window<'a> {
     first_week: IsoWeek,
     weeks: usize,
@@ -448,6 +455,9 @@ struct Window<'a> {
     hourly: &'a [u64],
     /// See [`CountWeeks::details_from`] (unix seconds).
     details_from: i64,
+    /// The revert index and the existing-data grid, read once for the window.
+    reverts: &'a RevertIndex,
+    existing: &'a ExistingData,
 }
 
 /// What the loading thread of [`count`] sends: the size of the area edited in the resolution
@@ -517,8 +527,7 @@ fn count_loaded(
 ) -> Result<Counted, PipelineError> {
     let (weeks, from) = (window.weeks, window.from);
     let first_edit = window.mapper_first;
-    let reverts = RevertIndex::load(store)?;
-    let existing = ExistingData::load(store)?;
+    let (reverts, existing) = (window.reverts, window.existing);
     // The mappers' histories follow the parts ([`HISTORY_STRETCH`]).
     let mut hist = MapperHistory::default();
     let lost = || PipelineError::NoData {
@@ -578,12 +587,12 @@ fn count_loaded(
                 .and_modify(|a| *a = (*a).min(t))
                 .or_insert(t);
         }
-        hist.prepare(store, &reverts, asked, part_end, HISTORY_STRETCH)?;
+        hist.prepare(store, reverts, asked, part_end, HISTORY_STRETCH)?;
         // Each changeset is scored in the part of its last edit, and parts never cross the start
         // of a week: those with an edit in the week of `details_from` or later are the ones
         // scored in a part starting there or later.
         let details = part_start >= window.details_from;
-        let facts = edit_facts(&ready, &hist, first_edit, land, &existing, &opts.features);
+        let facts = edit_facts(&ready, &hist, first_edit, land, existing, &opts.features);
         part_scores.clear();
         for f in changeset_features(&ready, &facts, &metas, &hist, first_edit) {
             let s = opts.scoring.score(&f);
