@@ -303,6 +303,8 @@ pub struct CountWeeks {
 /// remembered from the first pass). Only the flagged changesets keep their score after their
 /// part, and the mappers' histories are read a stretch at a time as the parts advance.
 ///
+/// The store's connection keeps a page cache of [`COUNTING_CACHE_MIB`] from here on.
+///
 /// With `fold_into`, the changesets' shares of the weeks before `weeks.last` are folded into
 /// per-region totals as they are counted ([`Counted::region_weeks`]), so memory follows the
 /// report week's shares; without, every share is kept (an export).
@@ -346,6 +348,7 @@ pub fn count(
         ..
     } = times;
     let carried = carried_changesets(from, &parts, changeset_hours);
+    store.set_cache_mib(COUNTING_CACHE_MIB)?;
     // Read before the loading thread starts: reading every changeset's comment for the revert
     // index is the report's largest passing need (SQLite sorts the whole changesets table), and
     // it would otherwise come on top of the loading thread's node-index cache and first parts.
@@ -380,6 +383,12 @@ pub fn count(
 /// about twice this span of the mappers' changesets, not their whole histories (BENCHMARKS.md,
 /// "Report memory (session 6)").
 const HISTORY_STRETCH: i64 = 7 * 86_400;
+
+/// The SQLite page cache of the caller's connection from [`count`] on. It reads the changesets
+/// once in full (the revert index) and then each mapper's stretches by index; the 64 MiB of an
+/// ingest held as much again as any other part of the report at 16x, for no measurable gain in
+/// time (BENCHMARKS.md, "Report memory (session 6)").
+const COUNTING_CACHE_MIB: u32 = 8;
 
 /// The SQLite page cache of the connection that loads the parts (BENCHMARKS.md, "The edit log
 /// out of SQLite, the report's earlier weeks folded").
