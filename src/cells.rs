@@ -506,21 +506,24 @@ impl ChangesetCellWeek {
 }
 
 /// What a region's weekly trend and baseline take from the changesets' shares: the sums, and
-/// the distinct changesets and newcomer mappers.
+/// the distinct changesets, flagged changesets and newcomer mappers.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct RegionWeek {
     pub edits: u64,
     pub deletes: u64,
     pub newcomer_edits: u64,
     /// Changesets with an edit in the region this week.
-    pub changesets: foldhash::HashSet<i64>,
+    pub changesets: u64,
+    /// Of those, the flagged ones.
+    pub flagged_changesets: u64,
     /// Mappers with an edit in the region this week made while they were newcomers.
     pub newcomers: foldhash::HashSet<i64>,
 }
 
 /// [`RegionWeek`]s of a window, per region and week. Folding the shares of the weeks before
 /// the report week into these as they are counted keeps a report's memory to the report week's
-/// shares, instead of the window's (ids only, not a record per changeset, cell and week).
+/// shares, instead of the window's: changesets are counted batch by batch (each batch holds
+/// every share of its changesets), so only the newcomers' ids are kept.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct RegionWeeks {
     weeks: usize,
@@ -538,20 +541,35 @@ impl RegionWeeks {
         }
     }
 
-    /// Adds a changeset's share to a region's week (ignored outside the window).
-    pub fn add(&mut self, region: usize, share: &ChangesetCellWeek) {
-        if share.week >= self.weeks {
-            return;
-        }
-        let Some(t) = self.cells.get_mut(region * self.weeks + share.week) else {
-            return;
-        };
-        t.edits += share.edits();
-        t.deletes += share.deletes;
-        t.newcomer_edits += share.newcomer_edits;
-        t.changesets.insert(share.changeset);
-        if share.newcomer_edits > 0 {
-            t.newcomers.insert(share.uid);
+    /// Adds a batch of changesets' shares, each with its region (weeks outside the window and
+    /// unknown regions ignored); `flagged(changeset)` says whether a changeset is flagged. A
+    /// batch must hold all the shares of its changesets that are ever added: a changeset is
+    /// counted once per region and week of the batch, so one added again in a later batch would
+    /// be counted twice.
+    pub fn add_batch<'a>(
+        &mut self,
+        shares: impl IntoIterator<Item = (usize, &'a ChangesetCellWeek)>,
+        flagged: impl Fn(i64) -> bool,
+    ) {
+        let mut seen: foldhash::HashSet<(usize, i64)> = foldhash::HashSet::default();
+        for (region, share) in shares {
+            if share.week >= self.weeks {
+                continue;
+            }
+            let at = region * self.weeks + share.week;
+            let Some(t) = self.cells.get_mut(at) else {
+                continue;
+            };
+            t.edits += share.edits();
+            t.deletes += share.deletes;
+            t.newcomer_edits += share.newcomer_edits;
+            if seen.insert((at, share.changeset)) {
+                t.changesets += 1;
+                t.flagged_changesets += u64::from(flagged(share.changeset));
+            }
+            if share.newcomer_edits > 0 {
+                t.newcomers.insert(share.uid);
+            }
         }
     }
 
@@ -663,19 +681,30 @@ mod tests {
             ..ChangesetCellWeek::default()
         };
         let mut t = RegionWeeks::new(2, 3);
+        let flagged = |cs: i64| cs % 2 == 0;
         // One changeset in two cells of region 0, week 1: one changeset, edits summed.
-        t.add(0, &share(1, 10, 7, 2, 1));
-        t.add(0, &share(1, 10, 7, 1, 2));
-        t.add(0, &share(1, 11, 8, 0, 0));
-        t.add(1, &share(1, 12, 7, 0, 1));
-        t.add(0, &share(3, 13, 9, 0, 0)); // outside the window
-        t.add(2, &share(0, 14, 9, 0, 0)); // no such region
+        let first = [
+            (0, share(1, 10, 7, 2, 1)),
+            (0, share(1, 11, 8, 0, 0)),
+            (0, share(1, 10, 7, 1, 2)),
+            (1, share(1, 10, 7, 0, 0)), // the same changeset in another region
+            (0, share(2, 10, 7, 0, 0)), // and in another week
+            (0, share(3, 13, 9, 0, 0)), // outside the window
+            (2, share(0, 14, 9, 0, 0)), // no such region
+        ];
+        t.add_batch(first.iter().map(|(r, s)| (*r, s)), flagged);
+        // A later batch: other changesets, one more newcomer already counted.
+        let second = [(0, share(1, 12, 7, 0, 1)), (1, share(1, 15, 8, 0, 0))];
+        t.add_batch(second.iter().map(|(r, s)| (*r, s)), flagged);
         let w = &t.region(0)[1];
-        assert_eq!((w.edits, w.deletes, w.newcomer_edits), (6, 3, 3));
-        assert_eq!(w.changesets.len(), 2);
+        assert_eq!((w.edits, w.deletes, w.newcomer_edits), (7, 3, 4));
+        assert_eq!((w.changesets, w.flagged_changesets), (3, 2));
         assert_eq!(w.newcomers.len(), 1);
-        assert_eq!(t.region(1)[1].changesets.len(), 1);
-        assert!(t.region(0)[0].changesets.is_empty());
+        let w = &t.region(1)[1];
+        assert_eq!((w.changesets, w.flagged_changesets), (2, 1));
+        assert!(w.newcomers.is_empty());
+        assert_eq!(t.region(0)[2].changesets, 1);
+        assert_eq!(t.region(0)[0].changesets, 0);
         assert!(t.region(2).is_empty());
     }
 

@@ -9,8 +9,6 @@
 use std::collections::HashMap;
 use std::hash::BuildHasher;
 
-use rusqlite::params;
-
 use crate::labels::{RevertIndex, RevertedBy};
 use crate::land::Land;
 use crate::locate::{load_edits, ChangesetMeta, Edit};
@@ -198,20 +196,135 @@ impl ExistingData {
 /// The mappers' histories: each mapper's changeset start times (from changeset metadata), their
 /// earlier edits (from the diffs) and which of their changesets were reverted (from revert
 /// comments).
+///
+/// Loaded whole for a set of mappers ([`MapperHistory::load`]), or a stretch of time at a time
+/// ([`MapperHistory::prepare`]): a mapper's changesets before the stretch held are folded into
+/// counts, those after it are not read yet, so memory follows the stretch, not the history.
+/// The answers are the same either way.
 #[derive(Debug, Default)]
 pub struct MapperHistory {
-    created: foldhash::HashMap<i64, Vec<i64>>,
-    /// Per mapper, aligned with `created`: distinct ISO weeks among the changesets up to and
-    /// including each one.
-    weeks_upto: foldhash::HashMap<i64, Vec<u32>>,
-    /// Per mapper, per changeset in time order: (first edit time, edits so far, deletions so far).
-    work: foldhash::HashMap<i64, Vec<(i64, u64, u64)>>,
-    /// Per mapper: how each reverted changeset of theirs was reverted, by changeset start time.
-    reverted: foldhash::HashMap<i64, Vec<(i64, RevertedBy)>>,
+    mappers: foldhash::HashMap<i64, Mapper>,
+    /// Mappers read again from their start because a question came from before what was held.
+    reloads: u64,
+}
+
+/// One mapper's history: changesets started before `held_from` folded into counts, those up to
+/// `loaded_to` held (the work in the diffs likewise, by first edit time).
+#[derive(Debug)]
+struct Mapper {
+    /// Start time of the mapper's first changeset, if any.
+    first_seen: Option<i64>,
+    /// Changesets and work before this time are folded into the counts below.
+    held_from: i64,
+    /// Changesets and work before this time are read (`None`: all of them).
+    loaded_to: Option<i64>,
+    /// Changesets folded.
+    created_before: usize,
+    /// Distinct ISO weeks among the changesets folded.
+    weeks_before: u32,
+    /// Start times of the changesets held, ascending.
+    created: Vec<i64>,
+    /// Aligned with `created`: distinct ISO weeks among the changesets up to and including each
+    /// one, the folded ones included.
+    weeks_upto: Vec<u32>,
+    /// Distinct weeks among all changesets read, and the week of the last one.
+    weeks_read: u32,
+    last_week: Option<i64>,
+    /// Edits and deletions of the work folded.
+    work_before: (u64, u64),
+    /// Per changeset in the diffs, by first edit time: (first edit time, edits so far, deletions
+    /// so far), the folded work included.
+    work: Vec<(i64, u64, u64)>,
+    /// Edits and deletions of all work read.
+    work_read: (u64, u64),
+    /// How each reverted changeset read was reverted, by changeset start time.
+    reverted: Vec<(i64, RevertedBy)>,
+}
+
+impl Mapper {
+    /// Nothing read yet, the first changeset's time aside.
+    fn new(first_seen: Option<i64>) -> Self {
+        Self {
+            first_seen,
+            held_from: i64::MIN,
+            loaded_to: Some(i64::MIN),
+            created_before: 0,
+            weeks_before: 0,
+            created: Vec::new(),
+            weeks_upto: Vec::new(),
+            weeks_read: 0,
+            last_week: None,
+            work_before: (0, 0),
+            work: Vec::new(),
+            work_read: (0, 0),
+            reverted: Vec::new(),
+        }
+    }
+
+    /// Reads the changesets and work from `loaded_to` up to `to` (`None`: all).
+    fn read_to(
+        &mut self,
+        store: &Store,
+        uid: i64,
+        reverts: &RevertIndex,
+        to: Option<i64>,
+    ) -> Result<(), StoreError> {
+        let Some(from) = self.loaded_to else {
+            return Ok(());
+        };
+        if to.is_some_and(|to| to <= from) {
+            return Ok(());
+        }
+        for (t, id) in store.mapper_changesets(uid, from, to)? {
+            self.push_changeset(t, reverts.reverted(id));
+        }
+        for (t, n, d) in store.mapper_work_between(uid, from, to)? {
+            self.work_read.0 += n;
+            self.work_read.1 += d;
+            self.work.push((t, self.work_read.0, self.work_read.1));
+        }
+        self.loaded_to = to;
+        Ok(())
+    }
+
+    /// Adds a changeset started at `t`, after those read so far.
+    fn push_changeset(&mut self, t: i64, reverted: Option<RevertedBy>) {
+        if let Some(r) = reverted {
+            self.reverted.push((t, r));
+        }
+        // Monday 1970-01-05, four days (345 600 s) after the epoch, starts a week.
+        let w = (t - 345_600).div_euclid(604_800);
+        if self.last_week != Some(w) {
+            self.weeks_read += 1;
+            self.last_week = Some(w);
+        }
+        self.created.push(t);
+        self.weeks_upto.push(self.weeks_read);
+    }
+
+    /// Folds the changesets and work before `t` into the counts.
+    fn fold_before(&mut self, t: i64) {
+        if t <= self.held_from {
+            return;
+        }
+        let k = self.created.partition_point(|&c| c < t);
+        if let Some(&w) = k.checked_sub(1).and_then(|i| self.weeks_upto.get(i)) {
+            self.weeks_before = w;
+        }
+        self.created_before += k;
+        self.created.drain(..k);
+        self.weeks_upto.drain(..k);
+        let j = self.work.partition_point(|x| x.0 < t);
+        if let Some(&(_, n, d)) = j.checked_sub(1).and_then(|i| self.work.get(i)) {
+            self.work_before = (n, d);
+        }
+        self.work.drain(..j);
+        self.held_from = t;
+    }
 }
 
 impl MapperHistory {
-    /// Loads the history of the given mappers.
+    /// Loads the whole history of the given mappers.
     ///
     /// # Errors
     /// On database failure.
@@ -220,56 +333,73 @@ impl MapperHistory {
         uids: impl IntoIterator<Item = i64>,
         reverts: &RevertIndex,
     ) -> Result<Self, StoreError> {
-        let conn = store.conn();
-        let mut st = conn
-            .prepare_cached(
-                "SELECT created_at, id FROM changesets WHERE uid = ?1 ORDER BY created_at",
-            )
-            .map_err(|e| store.map_err(e))?;
         let mut out = Self::default();
         for uid in uids {
-            let v: Vec<(i64, i64)> = st
-                .query_map(params![uid], |r| Ok((r.get(0)?, r.get(1)?)))
-                .map_err(|e| store.map_err(e))?
-                .collect::<Result<Vec<_>, _>>()
-                .map_err(|e| store.map_err(e))?;
-            let reverted: Vec<(i64, RevertedBy)> = v
-                .iter()
-                .filter_map(|&(t, id)| reverts.reverted(id).map(|r| (t, r)))
-                .collect();
-            if !reverted.is_empty() {
-                out.reverted.insert(uid, reverted);
-            }
-            let created: Vec<i64> = v.into_iter().map(|(t, _)| t).collect();
-            out.weeks_upto.insert(uid, distinct_weeks_upto(&created));
-            out.created.insert(uid, created);
-            let mut cum = (0u64, 0u64);
-            let w: Vec<(i64, u64, u64)> = store
-                .mapper_work(uid)?
-                .into_iter()
-                .map(|(t, n, d)| {
-                    cum.0 += n;
-                    cum.1 += d;
-                    (t, cum.0, cum.1)
-                })
-                .collect();
-            out.work.insert(uid, w);
+            let mut m = Mapper::new(store.mapper_first_changeset(uid)?);
+            m.read_to(store, uid, reverts, None)?;
+            out.mappers.insert(uid, m);
         }
         Ok(out)
+    }
+
+    /// Makes the history answer for each `(uid, since)` of `asked` at any time from `since` up
+    /// to `to`: reads each mapper's changesets and work up to `to + stretch` when `to` is past
+    /// what was read, reads a mapper again from the start when `since` is before what is held
+    /// (counted in [`MapperHistory::reloads`]), and folds into counts what lies more than
+    /// `stretch` seconds before `since`. Mappers not asked about keep what they hold.
+    ///
+    /// # Errors
+    /// On database failure.
+    pub fn prepare(
+        &mut self,
+        store: &Store,
+        reverts: &RevertIndex,
+        asked: impl IntoIterator<Item = (i64, i64)>,
+        to: i64,
+        stretch: i64,
+    ) -> Result<(), StoreError> {
+        for (uid, since) in asked {
+            let m = match self.mappers.entry(uid) {
+                std::collections::hash_map::Entry::Occupied(o) => o.into_mut(),
+                std::collections::hash_map::Entry::Vacant(v) => {
+                    v.insert(Mapper::new(store.mapper_first_changeset(uid)?))
+                }
+            };
+            if since < m.held_from {
+                *m = Mapper::new(m.first_seen);
+                self.reloads += 1;
+            }
+            if m.loaded_to.is_some_and(|l| l < to) {
+                m.read_to(store, uid, reverts, Some(to.saturating_add(stretch.max(0))))?;
+            }
+            m.fold_before(since.saturating_sub(stretch.max(0)));
+        }
+        Ok(())
+    }
+
+    /// How many times [`MapperHistory::prepare`] read a mapper again from the start.
+    #[must_use]
+    pub fn reloads(&self) -> u64 {
+        self.reloads
     }
 
     /// Share of deletions among the mapper's edits (in the diffs) made before `t`, and how many
     /// edits that is.
     #[must_use]
     pub fn prior_deletion_share(&self, uid: i64, t: i64) -> (f64, u64) {
-        let Some(w) = self.work.get(&uid) else {
+        let Some(m) = self.mappers.get(&uid) else {
             return (0.0, 0);
         };
-        let k = w.partition_point(|x| x.0 < t);
-        match k.checked_sub(1).and_then(|i| w.get(i)) {
-            #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
-            Some(&(_, n, d)) if n > 0 => (d as f64 / n as f64, n),
-            _ => (0.0, 0),
+        let k = m.work.partition_point(|x| x.0 < t);
+        let (n, d) = k
+            .checked_sub(1)
+            .and_then(|i| m.work.get(i))
+            .map_or(m.work_before, |&(_, n, d)| (n, d));
+        #[allow(clippy::cast_precision_loss, reason = "counts are far below 2^52")]
+        if n > 0 {
+            (d as f64 / n as f64, n)
+        } else {
+            (0.0, 0)
         }
     }
 
@@ -277,10 +407,10 @@ impl MapperHistory {
     /// them, and those whose revert cited vandalism.
     #[must_use]
     pub fn prior_reverted(&self, uid: i64, t: i64) -> (u64, u64) {
-        let Some(v) = self.reverted.get(&uid) else {
+        let Some(m) = self.mappers.get(&uid) else {
             return (0, 0);
         };
-        let before = v.iter().filter(|(c, _)| *c < t);
+        let before = m.reverted.iter().filter(|(c, _)| *c < t);
         let (mut any, mut vandalism) = (0, 0);
         for (_, r) in before {
             any += u64::from(r.first < t);
@@ -292,47 +422,28 @@ impl MapperHistory {
     /// Time of the mapper's first changeset seen, if any.
     #[must_use]
     pub fn first_seen(&self, uid: i64) -> Option<i64> {
-        self.created.get(&uid).and_then(|v| v.first().copied())
+        self.mappers.get(&uid).and_then(|m| m.first_seen)
     }
 
     /// Number of the mapper's changesets started before `t`.
     #[must_use]
     pub fn prior(&self, uid: i64, t: i64) -> usize {
-        self.created
-            .get(&uid)
-            .map_or(0, |v| v.partition_point(|&c| c < t))
+        self.mappers.get(&uid).map_or(0, |m| {
+            m.created_before + m.created.partition_point(|&c| c < t)
+        })
     }
 
     /// Distinct ISO weeks with a changeset before `t`.
     #[must_use]
     pub fn active_weeks(&self, uid: i64, t: i64) -> usize {
-        let (Some(v), Some(w)) = (self.created.get(&uid), self.weeks_upto.get(&uid)) else {
+        let Some(m) = self.mappers.get(&uid) else {
             return 0;
         };
-        let k = v.partition_point(|&c| c < t);
+        let k = m.created.partition_point(|&c| c < t);
         k.checked_sub(1)
-            .and_then(|i| w.get(i))
-            .map_or(0, |&n| n as usize)
+            .and_then(|i| m.weeks_upto.get(i))
+            .map_or(m.weeks_before, |&n| n) as usize
     }
-}
-
-/// For times sorted ascending: at each position, the number of distinct weeks (Monday to
-/// Sunday, as ISO weeks) among the times up to and including it.
-fn distinct_weeks_upto(sorted: &[i64]) -> Vec<u32> {
-    let mut distinct = 0u32;
-    let mut last = None;
-    sorted
-        .iter()
-        .map(|&t| {
-            // Monday 1970-01-05, four days (345 600 s) after the epoch, starts a week.
-            let w = (t - 345_600).div_euclid(604_800);
-            if last != Some(w) {
-                distinct += 1;
-                last = Some(w);
-            }
-            distinct
-        })
-        .collect()
 }
 
 /// Account age in days at time `t` (0 when the first changeset seen is this one or later).
@@ -1077,7 +1188,11 @@ mod tests {
             times.push(monday_2026_12_21 + d * 43_200);
         }
         times.sort_unstable();
-        let got = distinct_weeks_upto(&times);
+        let mut m = Mapper::new(None);
+        for &t in &times {
+            m.push_changeset(t, None);
+        }
+        let got = m.weeks_upto;
         let mut seen = Vec::new();
         for (i, &t) in times.iter().enumerate() {
             let w = chrono::DateTime::from_timestamp(t, 0).unwrap().iso_week();
@@ -1086,6 +1201,111 @@ mod tests {
             }
             assert_eq!(got[i] as usize, seen.len(), "at {t}");
         }
+    }
+
+    /// A history read a stretch at a time, forwards with a step back, answers every question
+    /// as the whole history does, while holding only part of it.
+    #[test]
+    fn a_history_read_in_stretches_answers_as_the_whole() {
+        use chrono::TimeZone;
+        let dir = tempfile::tempdir().unwrap();
+        let mut store = Store::open(&dir.path().join("s.db")).unwrap();
+        let day = 86_400;
+        let t0 = 1_797_811_200; // a Monday
+        let iso = |t: i64| {
+            chrono::Utc
+                .timestamp_opt(t, 0)
+                .unwrap()
+                .format("%Y-%m-%dT%H:%M:%SZ")
+                .to_string()
+        };
+        // Mapper 1: a changeset every 1.3 days for 60 days; mapper 2: every 5 days, its
+        // changeset 2000 reverted for vandalism by changeset 3000 of mapper 1. Each changeset's
+        // edits (some deletions) start an hour after it opens.
+        let mut changesets = String::new();
+        let mut edits = String::new();
+        let mut node = 0;
+        let mut plan: Vec<(i64, i64, i64)> = (0..46)
+            .map(|i| (1000 + i, 1, t0 + i * 112_320))
+            .chain((0..12).map(|i| (2000 + i, 2, t0 + 3600 + i * 5 * day)))
+            .collect();
+        plan.push((3000, 1, t0 + 20 * day + 7));
+        for &(id, uid, t) in &plan {
+            let comment = if id == 3000 {
+                "revert vandalism of changeset 2000"
+            } else {
+                "mapping"
+            };
+            changesets.push_str(&format!(
+                r#"<changeset id="{id}" created_at="{}" closed_at="{}" open="false" user="m{uid}" uid="{uid}" num_changes="3"><tag k="comment" v="{comment}"/></changeset>"#,
+                iso(t),
+                iso(t + 7200)
+            ));
+            for j in 0..(1 + id % 3) {
+                node += 1;
+                let (ts, op) = (iso(t + 3600 + j), if j == 2 { "delete" } else { "create" });
+                edits.push_str(&format!(
+                    r#"<{op}><node id="{node}" version="1" changeset="{id}" uid="{uid}" user="m{uid}" timestamp="{ts}" lat="10.0" lon="20.0"/></{op}>"#
+                ));
+            }
+        }
+        let files = [
+            (
+                dir.path().join("c.osm"),
+                format!(r#"<osm version="0.6">{changesets}</osm>"#),
+            ),
+            (
+                dir.path().join("d.osc"),
+                format!(r#"<osmChange version="0.6">{edits}</osmChange>"#),
+            ),
+        ];
+        for (p, text) in &files {
+            std::fs::write(p, text).unwrap();
+        }
+        let paths: Vec<_> = files.iter().map(|f| f.0.clone()).collect();
+        crate::ingest::ingest(&mut store, &paths, &Progress::silent()).unwrap();
+        let reverts = RevertIndex::load(&store).unwrap();
+        assert!(reverts.reverted(2000).is_some(), "the fixture has a revert");
+        let whole = MapperHistory::load(&store, [1, 2, 3], &reverts).unwrap();
+        assert_eq!(whole.prior(1, t0 + 61 * day), 47);
+        assert!(whole.prior_deletion_share(2, t0 + 61 * day).1 > 0);
+        let mut part = MapperHistory::default();
+        // Parts of 2 days, the seventh asking from 12 days back (read again from the start).
+        for k in 0..30 {
+            let (from, to) = (t0 + k * 2 * day, t0 + (k + 1) * 2 * day);
+            let since = if k == 7 { from - 12 * day } else { from };
+            part.prepare(
+                &store,
+                &reverts,
+                [(1, since), (2, since), (3, since)],
+                to,
+                3 * day,
+            )
+            .unwrap();
+            for t in (since..to).step_by(7919) {
+                for uid in [1, 2, 3] {
+                    assert_eq!(part.first_seen(uid), whole.first_seen(uid));
+                    assert_eq!(part.prior(uid, t), whole.prior(uid, t), "{uid} at {t}");
+                    assert_eq!(part.active_weeks(uid, t), whole.active_weeks(uid, t));
+                    assert_eq!(
+                        part.prior_deletion_share(uid, t),
+                        whole.prior_deletion_share(uid, t)
+                    );
+                    assert_eq!(part.prior_reverted(uid, t), whole.prior_reverted(uid, t));
+                }
+            }
+            let held = part.mappers[&1].created.len();
+            assert!(
+                k == 7 || held <= 8,
+                "part {k} holds {held} changesets of mapper 1"
+            );
+        }
+        assert_eq!(
+            part.reloads(),
+            3,
+            "each mapper asked about is read again once"
+        );
+        assert_eq!(whole.prior_reverted(2, t0 + 61 * day), (1, 1));
     }
 
     #[test]

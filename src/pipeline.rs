@@ -22,7 +22,8 @@ use crate::regions::{Region, RegionError};
 use crate::render::{HeatMap, RenderError, Style};
 use crate::report::{PageContext, ReportError};
 use crate::score::Scoring;
-use crate::store::{EditTimes, Store, StoreError};
+use crate::store::window::WindowTimes;
+use crate::store::{Store, StoreError};
 use crate::summary::{
     BaselineCounts, ChangesetRow, Counts, FlaggedChangeset, Outlier, Placement, RegionReport,
     RegionSummary, Summary, TrendPoint, SCHEMA_VERSION,
@@ -199,7 +200,8 @@ pub struct Counted {
     /// The changesets listed in full (texts, reasons): those with an edit in the report week for
     /// a report, every one of the window for an export.
     pub changesets: HashMap<i64, ScoredChangeset>,
-    /// The score of every changeset with an edit in the window.
+    /// The scores of the changesets with an edit in the window that scored at or above the
+    /// flag threshold: a report from the database keeps only these, an export gives every one.
     pub scores: foldhash::HashMap<i64, f64>,
 }
 
@@ -294,10 +296,14 @@ pub struct CountWeeks {
 /// the area edited in `weeks.resolution`.
 ///
 /// Memory follows a part of the window, not the whole: a first pass reads only who edited when
-/// (each changeset's last edit, each mapper's first, edits per hour), then the edits are loaded
-/// in parts of at most [`PART_EDITS`] (by a second thread with its own connection), and each
-/// changeset is scored and counted once all its edits in the window are loaded (a changeset
-/// still open at the end of a part waits for the next).
+/// (the hours of each changeset's first and last edit, each mapper's first edit, edits per
+/// hour), then the edits are loaded in parts of at most [`PART_EDITS`] (by a second thread with
+/// its own connection), and each changeset is scored and counted once all its edits in the
+/// window are loaded (a changeset with edits in a later part waits for it; only these are
+/// remembered from the first pass). Only the flagged changesets keep their score after their
+/// part, and the mappers' histories are read a stretch at a time as the parts advance.
+///
+/// The store's connection keeps a page cache of [`COUNTING_CACHE_MIB`] from here on.
 ///
 /// With `fold_into`, the changesets' shares of the weeks before `weeks.last` are folded into
 /// per-region totals as they are counted ([`Counted::region_weeks`]), so memory follows the
@@ -316,7 +322,7 @@ pub fn count(
     let (first_week, last_week, resolution_week) = (weeks.first, weeks.last, weeks.resolution);
     let from = first_week.start_unix();
     let to = last_week.offset(1).start_unix();
-    let times = store.edit_times(from, to)?;
+    let times = store.window_times(from, to)?;
     if times.last_ts.is_none_or(|t| t < last_week.start_unix()) {
         return Err(PipelineError::NoData {
             path: store.path().to_owned(),
@@ -335,15 +341,24 @@ pub fn count(
             .filter(|&(a, b)| a < rw.1 && b > rw.0)
             .collect()
     });
-    let EditTimes {
-        changeset_last,
+    let WindowTimes {
+        changeset_hours,
         mapper_first,
+        hourly,
         ..
-    } = &times;
+    } = times;
+    let carried = carried_changesets(from, &parts, changeset_hours);
+    store.set_cache_mib(COUNTING_CACHE_MIB)?;
+    // Read before the loading thread starts: reading every changeset's comment for the revert
+    // index is the report's largest passing need (SQLite sorts the whole changesets table), and
+    // it would otherwise come on top of the loading thread's node-index cache and first parts.
+    let reverts = RevertIndex::load(store)?;
+    let existing = ExistingData::load(store)?;
     std::thread::scope(|scope| {
         // A second connection loads and places the edits, one part ahead of the counting
-        // below (a core each when there are two).
-        let (tx, rx) = std::sync::mpsc::sync_channel(1);
+        // below (a core each when there are two). The hand-over waits for the receiver, so at
+        // most two parts are held: the one being counted and the next.
+        let (tx, rx) = std::sync::mpsc::sync_channel(0);
         let (path, load) = (store.path(), parts.as_slice());
         scope.spawn(move || load_parts(path, extent_parts.as_deref(), rw, load, &tx));
         let window = Window {
@@ -351,14 +366,29 @@ pub fn count(
             weeks: usize::try_from(last_week.ordinal() - first_week.ordinal() + 1).unwrap_or(0),
             from,
             parts: &parts,
-            changeset_last,
-            mapper_first,
-            hourly: &times.hourly,
+            carried: &carried,
+            mapper_first: &mapper_first,
+            hourly: &hourly,
             details_from: weeks.details_from.start_unix(),
+            reverts: &reverts,
+            existing: &existing,
         };
         count_loaded(store, &rx, &window, land, fold_into, opts, progress)
     })
 }
+
+/// How far (seconds) the mappers' histories reach beyond the part being counted: a mapper's
+/// changesets are read up to this far past the part's end when the part needs more, and those
+/// further before the part's changesets than this are folded into counts, so memory follows
+/// about twice this span of the mappers' changesets, not their whole histories (BENCHMARKS.md,
+/// "Report memory (session 6)").
+const HISTORY_STRETCH: i64 = 7 * 86_400;
+
+/// The SQLite page cache of the caller's connection from [`count`] on. It reads the changesets
+/// once in full (the revert index) and then each mapper's stretches by index; the 64 MiB of an
+/// ingest held as much again as any other part of the report at 16x, for no measurable gain in
+/// time (BENCHMARKS.md, "Report memory (session 6)").
+const COUNTING_CACHE_MIB: u32 = 8;
 
 /// The SQLite page cache of the connection that loads the parts (BENCHMARKS.md, "The edit log
 /// out of SQLite, the report's earlier weeks folded").
@@ -393,21 +423,50 @@ fn window_parts(from: i64, to: i64, hourly: &[u64], most: u64) -> Vec<(i64, i64)
     parts
 }
 
-/// The window [`count`] counts and how it is split.
+/// The changesets whose edits in the window fall in more than one of `parts` (consecutive
+/// parts of whole hours from `from`), each with the index of the part holding its last edit,
+/// from the first pass's hours of each changeset's first and last edit (freed here): the only
+/// changesets [`count_loaded`] holds back at the end of a part, a few per part boundary,
+/// instead of an entry for every changeset of the window.
+fn carried_changesets(
+    from: i64,
+    parts: &[(i64, i64)],
+    hours: foldhash::HashMap<i64, (u32, u32)>,
+) -> foldhash::HashMap<i64, usize> {
+    let starts: Vec<i64> = parts.iter().map(|&(a, _)| (a - from) / 3600).collect();
+    let part_of = |h: u32| {
+        starts
+            .partition_point(|&s| s <= i64::from(h))
+            .saturating_sub(1)
+    };
+    hours
+        .into_iter()
+        .filter_map(|(cs, (first, last))| {
+            let (p, q) = (part_of(first), part_of(last));
+            (p != q).then_some((cs, q))
+        })
+        .collect()
+}
+
+/// The window [`count`] counts, how it is split, and what is read once for it.
 struct Window<'a> {
     first_week: IsoWeek,
     weeks: usize,
     /// Start of the first week (unix seconds).
     from: i64,
     parts: &'a [(i64, i64)],
-    /// Per changeset, the time of its last edit in the window.
-    changeset_last: &'a foldhash::HashMap<i64, i64>,
+    /// The changesets with edits in more than one part, each with the index of the part
+    /// holding its last edit ([`carried_changesets`]).
+    carried: &'a foldhash::HashMap<i64, usize>,
     /// Per mapper (uid), the time of their first edit in the window.
     mapper_first: &'a foldhash::HashMap<i64, i64>,
     /// Edits per hour of the window.
     hourly: &'a [u64],
     /// See [`CountWeeks::details_from`] (unix seconds).
     details_from: i64,
+    /// The revert index and the existing-data grid, read once for the window.
+    reverts: &'a RevertIndex,
+    existing: &'a ExistingData,
 }
 
 /// What the loading thread of [`count`] sends: the size of the area edited in the resolution
@@ -477,11 +536,9 @@ fn count_loaded(
 ) -> Result<Counted, PipelineError> {
     let (weeks, from) = (window.weeks, window.from);
     let first_edit = window.mapper_first;
-    let mut uids: Vec<i64> = first_edit.keys().copied().collect();
-    uids.sort_unstable();
-    let reverts = RevertIndex::load(store)?;
-    let existing = ExistingData::load(store)?;
-    let hist = MapperHistory::load(store, uids, &reverts)?;
+    let (reverts, existing) = (window.reverts, window.existing);
+    // The mappers' histories follow the parts ([`HISTORY_STRETCH`]).
+    let mut hist = MapperHistory::default();
     let lost = || PipelineError::NoData {
         path: store.path().to_owned(),
         message: "the thread loading edits stopped".to_owned(),
@@ -500,18 +557,17 @@ fn count_loaded(
     let mut region_weeks = fold_into.map(|r| RegionWeeks::new(r.len(), weeks));
     let mut region_cache: foldhash::HashMap<CellIndex, Option<usize>> =
         foldhash::HashMap::default();
-    // Earlier weeks' changesets keep only their score: a full record each was the largest share
-    // of the report's peak memory (BENCHMARKS.md, "Where the report's memory goes"). The map
-    // is sized once from the first pass's count, not grown by doubling.
-    let mut scores: foldhash::HashMap<i64, f64> = foldhash::HashMap::with_capacity_and_hasher(
-        window.changeset_last.len(),
-        Default::default(),
-    );
+    // Earlier weeks' changesets keep no record (a full record each was the largest share of
+    // the report's peak memory, BENCHMARKS.md, "Where the report's memory goes"), and only the
+    // flagged ones keep their score, which the weekly trend counts; the others' scores are
+    // needed only while their part is counted.
+    let mut part_scores: foldhash::HashMap<i64, f64> = foldhash::HashMap::default();
+    let mut flagged: foldhash::HashMap<i64, f64> = foldhash::HashMap::default();
     let mut changesets: HashMap<i64, ScoredChangeset> = HashMap::new();
     let mut waiting: Vec<Edit> = Vec::new();
     let mut waiting_metas: HashMap<i64, ChangesetMeta> = HashMap::new();
     let bar = progress.steps(window.hourly.iter().sum(), "count");
-    for &(_, part_end) in window.parts {
+    for (k, &(part_start, part_end)) in window.parts.iter().enumerate() {
         let Loaded::Part(mut ready, mut metas) = next()? else {
             return Err(lost());
         };
@@ -520,7 +576,7 @@ fn count_loaded(
         ready.append(&mut waiting);
         metas.extend(waiting_metas.drain());
         // Changesets with edits after this part wait, with their metadata, for a later part.
-        let done = |cs: i64| window.changeset_last.get(&cs).is_none_or(|&t| t < part_end);
+        let done = |cs: i64| window.carried.get(&cs).is_none_or(|&last| last <= k);
         let later: Vec<Edit> = ready.extract_if(.., |e| !done(e.changeset)).collect();
         for e in &later {
             if let Some(m) = metas.remove(&e.changeset) {
@@ -528,14 +584,31 @@ fn count_loaded(
             }
         }
         waiting = later;
-        let facts = edit_facts(&ready, &hist, first_edit, land, &existing, &opts.features);
+        // A changeset's mapper history is asked about at its start, its metadata's or its first
+        // edit's, whichever is earlier; the edits' facts ask only for the first changeset's time.
+        let mut asked: foldhash::HashMap<i64, i64> = foldhash::HashMap::default();
+        for e in &ready {
+            let t = metas
+                .get(&e.changeset)
+                .map_or(e.ts, |m| m.created_at.min(e.ts));
+            asked
+                .entry(e.uid)
+                .and_modify(|a| *a = (*a).min(t))
+                .or_insert(t);
+        }
+        hist.prepare(store, reverts, asked, part_end, HISTORY_STRETCH)?;
+        // Each changeset is scored in the part of its last edit, and parts never cross the start
+        // of a week: those with an edit in the week of `details_from` or later are the ones
+        // scored in a part starting there or later.
+        let details = part_start >= window.details_from;
+        let facts = edit_facts(&ready, &hist, first_edit, land, existing, &opts.features);
+        part_scores.clear();
         for f in changeset_features(&ready, &facts, &metas, &hist, first_edit) {
             let s = opts.scoring.score(&f);
-            scores.insert(f.id, s.score);
-            let details = window
-                .changeset_last
-                .get(&f.id)
-                .is_some_and(|&t| t >= window.details_from);
+            part_scores.insert(f.id, s.score);
+            if s.score >= threshold {
+                flagged.insert(f.id, s.score);
+            }
             if details {
                 changesets.insert(
                     f.id,
@@ -560,19 +633,20 @@ fn count_loaded(
                 usize::try_from(w).ok().filter(|&w| w < weeks)
             })
             .collect();
-        let score = |cs: i64| scores.get(&cs).copied().unwrap_or(0.0);
+        let score = |cs: i64| part_scores.get(&cs).copied().unwrap_or(0.0);
         counter.add(&ready, &facts, &week_of, &score, threshold);
         if let (Some(totals), Some(regions)) = (&mut region_weeks, fold_into) {
-            for share in counter.take_shares_before(report_idx) {
-                let region = share_region(&share, report_idx, |c| {
+            // The shares taken are all those of this part's changesets before the report week.
+            let shares = counter.take_shares_before(report_idx);
+            let placed = shares.iter().filter_map(|share| {
+                let region = share_region(share, report_idx, |c| {
                     *region_cache
                         .entry(c)
                         .or_insert_with(|| crate::regions::region_of(regions, c))
                 });
-                if let Some(r) = region {
-                    totals.add(r, &share);
-                }
-            }
+                region.map(|r| (r, share))
+            });
+            totals.add_batch(placed, |cs| score(cs) >= threshold);
         }
     }
     bar.finish();
@@ -583,7 +657,7 @@ fn count_loaded(
         changeset_cells,
         region_weeks,
         changesets,
-        scores,
+        scores: flagged,
     })
 }
 
@@ -715,14 +789,16 @@ pub fn analyse_counted(
         .filter_map(|&c| crate::regions::region_of(regions, c).map(|r| (c, r)))
         .collect();
     // Each region's weeks: the totals folded while counting, if any, plus the shares kept.
+    // The shares kept are all those of their changesets not folded already.
     let mut totals = counted
         .region_weeks
         .unwrap_or_else(|| RegionWeeks::new(regions.len(), weeks));
-    for share in &counted.changeset_cells {
-        if let Some(r) = share_region(share, report_idx, |c| region_of_cell.get(&c).copied()) {
-            totals.add(r, share);
-        }
-    }
+    let placed = counted.changeset_cells.iter().filter_map(|share| {
+        share_region(share, report_idx, |c| region_of_cell.get(&c).copied()).map(|r| (r, share))
+    });
+    totals.add_batch(placed, |id| {
+        counted.scores.get(&id).is_some_and(|&s| s >= threshold)
+    });
 
     let slugs =
         crate::report::assign_slugs(&regions.iter().map(|r| r.name.as_str()).collect::<Vec<_>>());
@@ -754,11 +830,7 @@ pub fn analyse_counted(
                 edits: t.edits,
                 deletes: t.deletes,
                 newcomer_edits: t.newcomer_edits,
-                flagged_changesets: t
-                    .changesets
-                    .iter()
-                    .filter(|id| counted.scores.get(id).is_some_and(|&s| s >= threshold))
-                    .count() as u64,
+                flagged_changesets: t.flagged_changesets,
             })
             .collect();
         let mut mappers = BTreeSet::new();
@@ -806,7 +878,7 @@ pub fn analyse_counted(
                     / n,
                 changesets: region_weeks[..report_idx]
                     .iter()
-                    .map(|t| t.changesets.len() as f64)
+                    .map(|t| t.changesets as f64)
                     .sum::<f64>()
                     / n,
             }
@@ -1062,6 +1134,35 @@ pub fn write(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Only the changesets with edits in two or more parts are carried, each to the part of
+    /// its last edit.
+    #[test]
+    fn carried_changesets_are_those_spanning_parts() {
+        let from = 1_797_811_200;
+        let h = 3600;
+        // Parts: hours 0-2, 3, 4-9, 10 to the end of the week.
+        let parts = [
+            (from, from + 3 * h),
+            (from + 3 * h, from + 4 * h),
+            (from + 4 * h, from + 10 * h),
+            (from + 10 * h, from + 604_800),
+        ];
+        let hours: foldhash::HashMap<i64, (u32, u32)> = [
+            (1, (0, 2)),
+            (2, (2, 3)),
+            (3, (3, 3)),
+            (4, (1, 11)),
+            (5, (4, 9)),
+            (6, (9, 10)),
+            (7, (167, 167)),
+        ]
+        .into_iter()
+        .collect();
+        let got = carried_changesets(from, &parts, hours);
+        let want: foldhash::HashMap<i64, usize> = [(2, 1), (4, 3), (6, 3)].into_iter().collect();
+        assert_eq!(got, want);
+    }
 
     #[test]
     fn window_parts_cover_the_window_in_bounded_parts_within_weeks() {

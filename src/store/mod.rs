@@ -21,6 +21,7 @@
 
 pub mod edit_log;
 pub mod log_file;
+pub mod window;
 
 use std::cell::RefCell;
 use std::path::{Path, PathBuf};
@@ -122,19 +123,6 @@ pub fn member_decode(code: i64) -> Option<(ElementType, i64)> {
         ElementType::from_code(code.rem_euclid(4))?,
         code.div_euclid(4),
     ))
-}
-
-/// Who edited when in a time window ([`Store::edit_times`]).
-#[derive(Debug, Default, Clone)]
-pub struct EditTimes {
-    /// Per changeset, the time of its last edit in the window.
-    pub changeset_last: foldhash::HashMap<i64, i64>,
-    /// Per mapper (uid), the time of their first edit in the window.
-    pub mapper_first: foldhash::HashMap<i64, i64>,
-    /// The time of the window's last edit, if it has any.
-    pub last_ts: Option<i64>,
-    /// Edits per hour of the window (repeated element versions counted each time).
-    pub hourly: Vec<u64>,
 }
 
 /// An open state database.
@@ -726,39 +714,6 @@ impl Store {
         Ok(edit_log::dedup_sorted(out))
     }
 
-    /// Who edited when in `from <= ts < to`, without reading the edits' text: each changeset's
-    /// last edit time and each mapper's first edit time in the window (a repeated element
-    /// version changes neither), and how many edits fall in each hour.
-    ///
-    /// # Errors
-    /// On SQLite failure or a damaged block.
-    pub fn edit_times(&self, from: i64, to: i64) -> Result<EditTimes, StoreError> {
-        let hours = usize::try_from((to - from).max(0).div_euclid(3600) + 1).unwrap_or(0);
-        let mut out = EditTimes {
-            hourly: vec![0; hours],
-            ..EditTimes::default()
-        };
-        self.for_each_edit_block(from, to, |data| {
-            edit_log::scan(data, |changeset, uid, ts| {
-                if ts < from || ts >= to {
-                    return;
-                }
-                if let Some(h) = usize::try_from((ts - from) / 3600)
-                    .ok()
-                    .and_then(|h| out.hourly.get_mut(h))
-                {
-                    *h += 1;
-                }
-                let last = out.changeset_last.entry(changeset).or_insert(ts);
-                *last = (*last).max(ts);
-                let first = out.mapper_first.entry(uid).or_insert(ts);
-                *first = (*first).min(ts);
-                out.last_ts = Some(out.last_ts.map_or(ts, |l: i64| l.max(ts)));
-            })
-        })?;
-        Ok(out)
-    }
-
     /// Calls `f` with the payload of each block of the edit log whose time span meets
     /// `from <= ts < to`, in the order they were written.
     fn for_each_edit_block(
@@ -828,31 +783,6 @@ impl Store {
             .map_err(|e| self.map_err(e))?;
         let rows = st
             .query_map([], |r| Ok((r.get(0)?, r.get(1)?)))
-            .map_err(|e| self.map_err(e))?;
-        rows.collect::<Result<_, _>>().map_err(|e| self.map_err(e))
-    }
-
-    /// A mapper's changesets in the diffs, by first edit time: (first edit time, edits,
-    /// deletions).
-    ///
-    /// # Errors
-    /// On SQLite failure.
-    pub fn mapper_work(&self, uid: i64) -> Result<Vec<(i64, u64, u64)>, StoreError> {
-        let mut st = self
-            .conn
-            .prepare_cached(
-                "SELECT first_ts, edits, deletes FROM changeset_work WHERE uid = ?1
-                 ORDER BY first_ts, changeset",
-            )
-            .map_err(|e| self.map_err(e))?;
-        let rows = st
-            .query_map([uid], |r| {
-                Ok((
-                    r.get::<_, i64>(0)?,
-                    u64::try_from(r.get::<_, i64>(1)?).unwrap_or(0),
-                    u64::try_from(r.get::<_, i64>(2)?).unwrap_or(0),
-                ))
-            })
             .map_err(|e| self.map_err(e))?;
         rows.collect::<Result<_, _>>().map_err(|e| self.map_err(e))
     }
@@ -1587,7 +1517,10 @@ mod tests {
                 ),
             ]
         );
-        assert_eq!(s.mapper_work(9).unwrap(), vec![(1000, 1, 0), (2000, 2, 1)]);
+        assert_eq!(
+            s.mapper_work_between(9, i64::MIN, None).unwrap(),
+            vec![(1000, 1, 0), (2000, 2, 1)]
+        );
         // Node 5 from its creation in the edits; node 6, never seen created, from the start.
         let squares = s.grid_first().unwrap();
         assert_eq!(squares.len(), 2);
