@@ -813,8 +813,6 @@ pub struct ElementStateTx {
     spill_bytes: usize,
     temp_seq: u32,
     changed: bool,
-    /// Bytes of the arena that staged rows still point to (the rest are replaced versions).
-    live_bytes: usize,
 }
 
 impl ElementStateTx {
@@ -847,7 +845,6 @@ impl ElementStateTx {
             spill_bytes: spill_bytes.max(1),
             temp_seq: 0,
             changed: false,
-            live_bytes: 0,
         })
     }
 
@@ -958,7 +955,7 @@ impl ElementStateTx {
                 message: format!("row of {key:?} too large to stage"),
             });
         };
-        let replaced = self.staged.insert(
+        self.staged.insert(
             key,
             Staged {
                 start,
@@ -966,30 +963,10 @@ impl ElementStateTx {
                 if_absent: !replace,
             },
         );
-        self.live_bytes += len as usize;
-        self.live_bytes -= replaced.map_or(0, |r| r.len as usize);
         if self.arena.len() >= self.spill_bytes {
-            // Mostly replaced versions: compacting in memory keeps the rows at hand; a run
-            // would make later lookups of them read a file.
-            if self.live_bytes * 2 < self.arena.len() {
-                self.compact();
-            } else {
-                self.spill()?;
-            }
+            self.spill()?;
         }
         Ok(())
-    }
-
-    /// Copies the staged rows into a new arena, dropping the versions replaced since.
-    fn compact(&mut self) {
-        let mut arena = Vec::with_capacity(self.arena.capacity());
-        for s in self.staged.values_mut() {
-            let range = s.range();
-            // Offsets stay below the old arena's length, which fitted in u32.
-            s.start = u32::try_from(arena.len()).unwrap_or(u32::MAX);
-            arena.extend_from_slice(self.arena.get(range).unwrap_or(&[]));
-        }
-        self.arena = arena;
     }
 
     /// The staged rows in key order, emptying the stage.
@@ -998,7 +975,6 @@ impl ElementStateTx {
         staged.sort_unstable_by_key(|s| s.0);
         let arena = std::mem::take(&mut self.arena);
         self.arena = Vec::with_capacity(arena.capacity());
-        self.live_bytes = 0;
         Box::new(StagedRecords {
             rows: staged.into_iter(),
             arena,
@@ -1180,38 +1156,6 @@ mod tests {
             .map(|e| e.unwrap().file_name().into_string().unwrap())
             .collect();
         assert_eq!(files, vec![format!("x.db.elements.{committed}")]);
-    }
-
-    /// Rows replaced again and again fill the arena with dead versions: it is compacted in
-    /// memory instead of spilled, and lookups and the next generation keep the latest rows.
-    #[test]
-    fn an_arena_of_replaced_versions_is_compacted_not_spilled() {
-        let dir = tempfile::tempdir().unwrap();
-        let prefix = dir.path().join("c.db.elements");
-        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
-        let mut tx = ElementStateTx::with_spill_bytes(&prefix, 0, 4_000).unwrap();
-        let mut latest: BTreeMap<i64, Row> = BTreeMap::new();
-        for round in 1..=200 {
-            for id in 0..5 {
-                let row = random_row(&mut rng, round);
-                tx.put(true, ElementType::Way, id, &as_ref(&row)).unwrap();
-                latest.insert(id, row);
-            }
-        }
-        assert!(
-            tx.arena.len() < 4_000 && tx.runs.is_empty() && tx.temp_seq == 0,
-            "compacted in memory, no run written"
-        );
-        for (&id, row) in &latest {
-            assert_eq!(tx.get(ElementType::Way, id).unwrap().as_ref(), Some(row));
-        }
-        let g = tx.prepare().unwrap().unwrap();
-        let state = ElementState::open_generation(&prefix, g.generation()).unwrap();
-        let got: Vec<(i64, Row)> = state
-            .rows_of(ElementType::Way)
-            .map(Result::unwrap)
-            .collect();
-        assert_eq!(got, latest.into_iter().collect::<Vec<_>>());
     }
 
     /// A row staged "only if absent" yields to a committed row, and to a row staged before it.
