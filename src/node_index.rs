@@ -669,7 +669,7 @@ impl NodeIndexTx {
             runs: Vec::new(),
             // Reserved whole (pages are only touched as entries arrive): growing by doubling
             // would hold the old and the new copy at once.
-            tail: Vec::with_capacity(run_entries.clamp(1, DEFAULT_RUN_ENTRIES)),
+            tail: Vec::with_capacity(run_entries.max(1)),
             fence: Vec::new(),
             overlay: foldhash::HashMap::default(),
             overlay_max: i64::MIN,

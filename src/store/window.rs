@@ -67,24 +67,19 @@ impl Store {
         from: i64,
         to: Option<i64>,
     ) -> Result<Vec<(i64, i64)>, StoreError> {
-        // Two statements rather than an optional bound, so that both ends narrow the index range.
-        let sql = match to {
-            Some(_) => {
+        // No end is the largest time: one statement, both ends narrowing the index range.
+        let mut st = self
+            .conn
+            .prepare_cached(
                 "SELECT created_at, id FROM changesets
-                 WHERE uid = ?1 AND created_at >= ?2 AND created_at < ?3 ORDER BY created_at"
-            }
-            None => {
-                "SELECT created_at, id FROM changesets
-                 WHERE uid = ?1 AND created_at >= ?2 ORDER BY created_at"
-            }
-        };
-        let mut st = self.conn.prepare_cached(sql).map_err(|e| self.map_err(e))?;
-        let row = |r: &rusqlite::Row<'_>| Ok((r.get(0)?, r.get(1)?));
-        let rows = match to {
-            Some(to) => st.query_map(rusqlite::params![uid, from, to], row),
-            None => st.query_map(rusqlite::params![uid, from], row),
-        }
-        .map_err(|e| self.map_err(e))?;
+                 WHERE uid = ?1 AND created_at >= ?2 AND created_at < ?3 ORDER BY created_at",
+            )
+            .map_err(|e| self.map_err(e))?;
+        let rows = st
+            .query_map(rusqlite::params![uid, from, to.unwrap_or(i64::MAX)], |r| {
+                Ok((r.get(0)?, r.get(1)?))
+            })
+            .map_err(|e| self.map_err(e))?;
         rows.collect::<Result<_, _>>().map_err(|e| self.map_err(e))
     }
 
@@ -99,29 +94,22 @@ impl Store {
         from: i64,
         to: Option<i64>,
     ) -> Result<Vec<(i64, u64, u64)>, StoreError> {
-        let sql = match to {
-            Some(_) => {
+        let mut st = self
+            .conn
+            .prepare_cached(
                 "SELECT first_ts, edits, deletes FROM changeset_work
-                 WHERE uid = ?1 AND first_ts >= ?2 AND first_ts < ?3 ORDER BY first_ts, changeset"
-            }
-            None => {
-                "SELECT first_ts, edits, deletes FROM changeset_work
-                 WHERE uid = ?1 AND first_ts >= ?2 ORDER BY first_ts, changeset"
-            }
-        };
-        let mut st = self.conn.prepare_cached(sql).map_err(|e| self.map_err(e))?;
-        let row = |r: &rusqlite::Row<'_>| {
-            Ok((
-                r.get::<_, i64>(0)?,
-                u64::try_from(r.get::<_, i64>(1)?).unwrap_or(0),
-                u64::try_from(r.get::<_, i64>(2)?).unwrap_or(0),
-            ))
-        };
-        let rows = match to {
-            Some(to) => st.query_map(rusqlite::params![uid, from, to], row),
-            None => st.query_map(rusqlite::params![uid, from], row),
-        }
-        .map_err(|e| self.map_err(e))?;
+                 WHERE uid = ?1 AND first_ts >= ?2 AND first_ts < ?3 ORDER BY first_ts, changeset",
+            )
+            .map_err(|e| self.map_err(e))?;
+        let rows = st
+            .query_map(rusqlite::params![uid, from, to.unwrap_or(i64::MAX)], |r| {
+                Ok((
+                    r.get::<_, i64>(0)?,
+                    u64::try_from(r.get::<_, i64>(1)?).unwrap_or(0),
+                    u64::try_from(r.get::<_, i64>(2)?).unwrap_or(0),
+                ))
+            })
+            .map_err(|e| self.map_err(e))?;
         rows.collect::<Result<_, _>>().map_err(|e| self.map_err(e))
     }
 
