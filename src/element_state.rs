@@ -32,10 +32,11 @@ use std::path::{Path, PathBuf};
 
 use crate::generations::{self, Prepared};
 use crate::model::ElementType;
+use crate::sorted_keys::SortedKeys;
 use crate::store::edit_log::{get_varint, put_bytes, put_signed, put_varint, unzigzag};
 
 /// A block is closed once it holds this many bytes (a lookup scans at most one block).
-pub const BLOCK_BYTES: usize = 2048;
+pub const BLOCK_BYTES: usize = 512;
 const MAGIC: &[u8; 8] = b"HXVELEM1";
 const HEADER_BYTES: usize = 16;
 const FOOTER_BYTES: usize = 32;
@@ -281,8 +282,10 @@ fn decode(body: &[u8]) -> Option<Row> {
 pub struct ElementState {
     file: Option<File>,
     path: PathBuf,
-    /// First key of each block, and the block's start offset.
-    dir: Vec<(Key, usize)>,
+    /// First key of each block (searched level by level: lookups are random).
+    keys: SortedKeys<Key>,
+    /// Each block's start offset.
+    offsets: Vec<usize>,
     /// Where the blocks end (the directory's offset).
     blocks_end: usize,
     rows: u64,
@@ -297,7 +300,8 @@ impl ElementState {
         Self {
             file: None,
             path: PathBuf::new(),
-            dir: Vec::new(),
+            keys: SortedKeys::default(),
+            offsets: Vec::new(),
             blocks_end: 0,
             rows: 0,
             block: std::cell::RefCell::new((usize::MAX, Vec::new())),
@@ -364,7 +368,7 @@ impl ElementState {
             return Err(damaged("directory does not fit the file"));
         }
         let entries = read_at(dir_at, foot - dir_at)?;
-        let mut dir = Vec::with_capacity(blocks);
+        let mut dir: Vec<(Key, usize)> = Vec::with_capacity(blocks);
         for b in 0..blocks {
             let at = b * DIR_ENTRY_BYTES;
             let (Some(id), Some(off)) = (word(&entries, at + 1), word(&entries, at + 9)) else {
@@ -385,7 +389,8 @@ impl ElementState {
         Ok(Self {
             file: Some(file),
             path: path.to_owned(),
-            dir,
+            keys: dir.iter().map(|d| d.0).collect(),
+            offsets: dir.iter().map(|d| d.1).collect(),
             blocks_end: dir_at,
             rows,
             block: std::cell::RefCell::new((usize::MAX, Vec::new())),
@@ -417,17 +422,14 @@ impl ElementState {
         key: Key,
         mut f: impl FnMut(&[u8]) -> R,
     ) -> Result<Option<R>, ElementStateError> {
-        let (Some(file), Some(b)) = (
-            &self.file,
-            self.dir.partition_point(|d| d.0 <= key).checked_sub(1),
-        ) else {
+        let (Some(file), Some(b)) = (&self.file, self.keys.last_at_most(&key)) else {
             return Ok(None);
         };
         let mut held = self.block.borrow_mut();
         let (number, data) = &mut *held;
         if *number != b {
-            let start = self.dir[b].1;
-            let end = self.dir.get(b + 1).map_or(self.blocks_end, |d| d.1);
+            let start = self.offsets[b];
+            let end = self.offsets.get(b + 1).copied().unwrap_or(self.blocks_end);
             data.resize(end - start, 0);
             *number = usize::MAX;
             std::os::unix::fs::FileExt::read_exact_at(file, data, start as u64)
@@ -473,8 +475,9 @@ impl ElementState {
     ) -> impl Iterator<Item = Result<(i64, Row), ElementStateError>> + '_ {
         let code = type_code(t);
         let first = self
-            .dir
-            .partition_point(|d| d.0 < (code, i64::MIN))
+            .keys
+            .keys()
+            .partition_point(|k| *k < (code, i64::MIN))
             .saturating_sub(1);
         self.sequential(first)
             .skip_while(move |r| r.as_ref().is_ok_and(|(k, _)| k.0 < code))
@@ -516,7 +519,7 @@ impl ElementState {
 
     /// Every record from block `first` on, in key order, for reading into a reused buffer.
     fn records(&self, first: usize) -> FileRecords<'_> {
-        let start = self.dir.get(first).map_or(self.blocks_end, |d| d.1);
+        let start = self.offsets.get(first).copied().unwrap_or(self.blocks_end);
         FileRecords {
             state: self,
             reader: self.file.as_ref().map(|file| {

@@ -33,6 +33,7 @@ pub mod render;
 pub mod report;
 pub mod roads;
 pub mod score;
+pub mod sorted_keys;
 pub mod store;
 pub mod summary;
 pub mod tiles;

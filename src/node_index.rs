@@ -24,6 +24,7 @@ use std::path::{Path, PathBuf};
 
 use crate::generations::{self, Prepared};
 use crate::model::Coord;
+use crate::sorted_keys::SortedKeys;
 
 /// Most entries in one block; a block is then at most 4 KiB, one page.
 pub const BLOCK_ENTRIES: usize = 256;
@@ -160,6 +161,8 @@ pub struct NodeIndex {
     count: u64,
     /// First id of each block and the index of its first entry.
     dir: Vec<(i64, u64)>,
+    /// The first ids again, searched level by level (lookups are random).
+    bases: SortedKeys<i64>,
     /// Copies of blocks read recently. The nodes of a way usually have neighbouring ids, and
     /// the ways of an area share nodes, so most lookups find their block here.
     cache: RefCell<BlockCache>,
@@ -225,6 +228,7 @@ impl NodeIndex {
             path: PathBuf::new(),
             count: 0,
             dir: Vec::new(),
+            bases: SortedKeys::default(),
             cache: RefCell::default(),
             cache_slots: CACHE_SLOTS,
             filter: None,
@@ -312,6 +316,7 @@ impl NodeIndex {
             file: Some(file),
             path: path.to_owned(),
             count,
+            bases: dir.iter().map(|d| d.0).collect(),
             dir,
             cache: RefCell::default(),
             cache_slots: CACHE_SLOTS,
@@ -358,7 +363,7 @@ impl NodeIndex {
         {
             last
         } else {
-            let Some(b) = self.dir.partition_point(|d| d.0 <= id).checked_sub(1) else {
+            let Some(b) = self.bases.last_at_most(&id) else {
                 return Ok(None);
             };
             cache.last_block = b;
@@ -612,9 +617,6 @@ fn merge_into(mut sources: Vec<Source<'_>>, out: &mut IndexWriter) -> Result<(),
     }
 }
 
-/// Entries of `NodeIndexTx::tail` per fence post.
-const FENCE: usize = 128;
-
 /// The changes one ingest makes to the index, staged until [`NodeIndexTx::prepare`].
 ///
 /// Lookups see the committed index and everything staged so far. Staged entries live in a hash
@@ -627,12 +629,12 @@ pub struct NodeIndexTx {
     /// Whether `base` is a temporary compaction (deleted when replaced or dropped).
     base_is_temp: bool,
     runs: Vec<NodeIndex>,
-    /// Entries staged in increasing id order (a sorted snapshot): kept without hashing.
-    tail: Vec<(i64, NodeEntry)>,
-    /// Every [`FENCE`]th id of `tail`: a lookup searches this small array first, then one
-    /// stretch of `tail`, instead of all of it (a binary search over millions of entries
-    /// misses the cache at almost every step).
-    fence: Vec<i64>,
+    /// Ids staged in increasing order (a sorted snapshot): kept without hashing, searched
+    /// level by level (a binary search over millions of entries misses the cache at almost
+    /// every step).
+    tail_ids: SortedKeys<i64>,
+    /// The entries of `tail_ids`, in the same order.
+    tail: Vec<NodeEntry>,
     /// Entries staged out of order, and repeats; later than `tail` for the same id.
     overlay: foldhash::HashMap<i64, NodeEntry>,
     /// The highest id in `overlay` (an id above it cannot be there).
@@ -669,8 +671,8 @@ impl NodeIndexTx {
             runs: Vec::new(),
             // Reserved whole (pages are only touched as entries arrive): growing by doubling
             // would hold the old and the new copy at once.
+            tail_ids: SortedKeys::with_capacity(run_entries.max(1)),
             tail: Vec::with_capacity(run_entries.max(1)),
-            fence: Vec::new(),
             overlay: foldhash::HashMap::default(),
             overlay_max: i64::MIN,
             run_entries: run_entries.max(1),
@@ -700,13 +702,11 @@ impl NodeIndexTx {
         // Snapshots come sorted by id: appending them skips the hash map. With this (and at
         // most 16 runs before a compaction) staging and writing 50 million sorted nodes went
         // from 70 s to 13 s (BENCHMARKS.md).
-        if self.tail.last().is_none_or(|l| id > l.0)
+        if self.tail_ids.keys().last().is_none_or(|&l| id > l)
             && (id > self.overlay_max || !self.overlay.contains_key(&id))
         {
-            if self.tail.len().is_multiple_of(FENCE) {
-                self.fence.push(id);
-            }
-            self.tail.push((id, entry));
+            self.tail_ids.push(id);
+            self.tail.push(entry);
             if self.tail.len() >= self.run_entries {
                 self.spill()?;
             }
@@ -728,15 +728,20 @@ impl NodeIndexTx {
         Ok(())
     }
 
-    fn write_run(&mut self, sorted: Vec<(i64, NodeEntry)>) -> Result<(), NodeIndexError> {
-        if sorted.is_empty() {
+    /// Writes `n` entries, in id order, as a run.
+    fn write_run(
+        &mut self,
+        n: usize,
+        sorted: impl IntoIterator<Item = (i64, NodeEntry)>,
+    ) -> Result<(), NodeIndexError> {
+        if n == 0 {
             return Ok(());
         }
         let path = self.temp_path("run");
         let mut w = IndexWriter::create(&path)?;
         let mut filter =
             fastbloom::BloomFilter::with_false_pos(crate::element_state::FILTER_FALSE_POSITIVES)
-                .expected_items(sorted.len());
+                .expected_items(n);
         for (id, e) in sorted {
             w.push(id, e)?;
             filter.insert_hash(filter_hash(id));
@@ -752,13 +757,16 @@ impl NodeIndexTx {
     /// Writes the staged entries out as runs (the tail first: the overlay is later), and
     /// merges the runs into a new temporary base when there are too many.
     fn spill(&mut self) -> Result<(), NodeIndexError> {
+        let ids = std::mem::replace(
+            &mut self.tail_ids,
+            SortedKeys::with_capacity(self.run_entries),
+        );
         let tail = std::mem::replace(&mut self.tail, Vec::with_capacity(self.run_entries));
-        self.fence.clear();
-        self.write_run(tail)?;
+        self.write_run(tail.len(), ids.into_keys().into_iter().zip(tail))?;
         let mut sorted: Vec<(i64, NodeEntry)> = self.overlay.drain().collect();
         self.overlay_max = i64::MIN;
         sorted.sort_unstable_by_key(|e| e.0);
-        self.write_run(sorted)?;
+        self.write_run(sorted.len(), sorted)?;
         if self.runs.len() > MAX_RUNS {
             let path = self.temp_path("base");
             let mut w = IndexWriter::create(&path)?;
@@ -792,15 +800,11 @@ impl NodeIndexTx {
                 best = Some(best.map_or(e, |b| b.newer(e)));
             }
         }
-        let stretch = self.fence.partition_point(|&f| f <= id).checked_sub(1);
-        let staged = stretch.and_then(|k| {
-            let part = self
-                .tail
-                .get(k * FENCE..self.tail.len().min((k + 1) * FENCE))?;
-            part.binary_search_by_key(&id, |t| t.0)
-                .ok()
-                .map(|i| part[i].1)
-        });
+        let staged = self
+            .tail_ids
+            .last_at_most(&id)
+            .filter(|&i| self.tail_ids.keys()[i] == id)
+            .map(|i| self.tail[i]);
         for e in [staged, self.overlay.get(&id).copied()]
             .into_iter()
             .flatten()
@@ -829,8 +833,9 @@ impl NodeIndexTx {
         for r in &self.runs {
             sources.push(Box::new(r.iter()?));
         }
-        self.fence.clear();
-        sources.push(Box::new(std::mem::take(&mut self.tail).into_iter().map(Ok)));
+        let ids = std::mem::take(&mut self.tail_ids).into_keys();
+        let tail = std::mem::take(&mut self.tail);
+        sources.push(Box::new(ids.into_iter().zip(tail).map(Ok)));
         sources.push(Box::new(overlay.into_iter().map(Ok)));
         merge_into(sources, &mut w)?;
         w.finish(true)?;
