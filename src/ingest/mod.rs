@@ -44,8 +44,8 @@ use crate::node_index::{NodeEntry, NodeIndexTx};
 use crate::progress::Progress;
 use crate::store::edit_log::{BlockBuilder, EditRef, PrevRef};
 use crate::store::{
-    grid_square, member_code, member_decode, pack_refs, pack_tags, unpack_refs, IngestTx, Store,
-    StoreError, Work,
+    grid_square, member_code, member_decode, pack_refs_into, pack_tags_into, unpack_refs, IngestTx,
+    Store, StoreError, Work,
 };
 use replication::{Replication, SequenceRange};
 use xml::{OsmSink, RawChangeset, RawElement, ReadError, Root, SinkError};
@@ -396,20 +396,56 @@ impl Element {
     /// Packs a read element; `None` when the reader could not tell its type.
     #[must_use]
     pub fn pack(el: &RawElement) -> Option<Self> {
-        let etype = el.etype?;
-        Some(Self {
-            etype,
-            id: el.id,
-            version: el.version,
-            timestamp: el.timestamp,
-            changeset: el.changeset,
-            uid: el.uid,
-            user: el.user.clone(),
-            visible: el.visible,
-            pos: el.coord.map(|c| (c.lat_e7(), c.lon_e7())),
-            tags: pack_tags(&el.tags),
-            refs: refs_of(el),
-        })
+        let mut e = Self {
+            etype: el.etype?,
+            id: 0,
+            version: 0,
+            timestamp: 0,
+            changeset: 0,
+            uid: 0,
+            user: String::new(),
+            visible: false,
+            pos: None,
+            tags: String::new(),
+            refs: None,
+        };
+        e.refill(el).then_some(e)
+    }
+
+    /// Makes this element the packed form of `el`, reusing its buffers; false (and unchanged)
+    /// when `el` has no type.
+    pub fn refill(&mut self, el: &RawElement) -> bool {
+        let Some(etype) = el.etype else {
+            return false;
+        };
+        self.etype = etype;
+        self.id = el.id;
+        self.version = el.version;
+        self.timestamp = el.timestamp;
+        self.changeset = el.changeset;
+        self.uid = el.uid;
+        self.user.clear();
+        self.user.push_str(&el.user);
+        self.visible = el.visible;
+        self.pos = el.coord.map(|c| (c.lat_e7(), c.lon_e7()));
+        pack_tags_into(&el.tags, &mut self.tags);
+        let mut refs = self.refs.take().unwrap_or_default();
+        let has_refs = match etype {
+            ElementType::Node => false,
+            ElementType::Way => {
+                pack_refs_into(el.refs.iter().copied(), &mut refs);
+                !el.refs.is_empty()
+            }
+            ElementType::Relation => {
+                pack_refs_into(
+                    el.members.iter().map(|&(t, id)| member_code(t, id)),
+                    &mut refs,
+                );
+                !el.members.is_empty()
+            }
+        };
+        self.refs = has_refs.then_some(refs);
+        true
     }
 }
 
@@ -563,7 +599,7 @@ pub fn ingest_extended(
     }
     let bar = progress.bytes(todo.iter().map(|i| i.size).sum(), "ingest");
     let now = chrono::Utc::now().timestamp();
-    run_parsers(&todo, |i, rx| {
+    run_parsers(&todo, |i, rx, spares| {
         let input = &todo[i];
         let mut w = Writer {
             tx: &tx,
@@ -587,6 +623,7 @@ pub fn ingest_extended(
                     for item in &items {
                         w.apply(item)?;
                     }
+                    spares.give(items);
                     bar.inc(bytes);
                 }
                 Ok(Msg::Done {
@@ -721,7 +758,7 @@ pub fn replication_note(r: &Replication) -> String {
 /// would starve the rayon pool that decodes PBF blocks.
 fn run_parsers(
     inputs: &[Input],
-    mut consume: impl FnMut(usize, &Receiver<Msg>) -> Result<(), IngestError>,
+    mut consume: impl FnMut(usize, &Receiver<Msg>, &Spares) -> Result<(), IngestError>,
 ) -> Result<(), IngestError> {
     if inputs.is_empty() {
         return Ok(());
@@ -735,6 +772,7 @@ fn run_parsers(
     }
     let next = AtomicUsize::new(0);
     let stop = AtomicBool::new(false);
+    let spares = Spares::default();
     let threads = std::thread::available_parallelism()
         .map_or(1, std::num::NonZeroUsize::get)
         .clamp(1, inputs.len());
@@ -747,13 +785,13 @@ fn run_parsers(
                 }
                 let sender = senders[i].lock().ok().and_then(|mut s| s.take());
                 if let Some(sender) = sender {
-                    parse_input(&inputs[i], &sender);
+                    parse_input(&inputs[i], &sender, &spares);
                 }
             });
         }
         let mut result = Ok(());
         for (i, rx) in receivers.iter().enumerate() {
-            result = consume(i, rx);
+            result = consume(i, rx, &spares);
             if result.is_err() {
                 break;
             }
@@ -766,7 +804,7 @@ fn run_parsers(
 }
 
 /// Reads one input and sends its batches, then `Done` or `Failed`.
-fn parse_input(input: &Input, sender: &SyncSender<Msg>) {
+fn parse_input(input: &Input, sender: &SyncSender<Msg>, spares: &Spares) {
     let bytes = AtomicU64::new(0);
     let mut reported = 0u64;
     // Marked here, on the parser's thread, to spare the writer: most of an input's marks need
@@ -791,7 +829,7 @@ fn parse_input(input: &Input, sender: &SyncSender<Msg>) {
             .map_err(|_| SinkError::from("the ingest stopped"))
     };
     let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| match input.format {
-        Format::Xml => parse_xml(&input.path, &bytes, &mut send),
+        Format::Xml => parse_xml(&input.path, &bytes, spares, &mut send),
         Format::Pbf => pbf::read_pbf(&input.path, &bytes, &mut send).map(|()| None),
     }))
     .unwrap_or_else(|_| {
@@ -813,8 +851,38 @@ fn parse_input(input: &Input, sender: &SyncSender<Msg>) {
 }
 
 /// Collects the XML reader's output into batches.
+/// Batches the writer has applied, handed back to the parsers, which refill their elements'
+/// buffers instead of allocating new ones: allocating them on one thread and freeing them on
+/// another cost about 4 % of an ingest (BENCHMARKS.md, "Lookups at scale").
+#[derive(Default)]
+struct Spares(Mutex<Vec<Vec<Item>>>);
+
+/// Applied batches kept for reuse (a parser takes one per batch it fills).
+const SPARE_BATCHES: usize = 8;
+
+impl Spares {
+    fn give(&self, items: Vec<Item>) {
+        if let Ok(mut s) = self.0.lock() {
+            if s.len() < SPARE_BATCHES {
+                s.push(items);
+            }
+        }
+    }
+
+    fn take(&self) -> Vec<Item> {
+        self.0
+            .lock()
+            .ok()
+            .and_then(|mut s| s.pop())
+            .unwrap_or_default()
+    }
+}
+
 struct BatchSink<'a> {
     items: Vec<Item>,
+    /// Applied items whose elements the next ones are packed into.
+    spare: Vec<Item>,
+    spares: &'a Spares,
     send: &'a mut dyn FnMut(Vec<Item>) -> Result<(), SinkError>,
 }
 
@@ -824,6 +892,7 @@ impl BatchSink<'_> {
         if self.items.len() >= BATCH_ITEMS {
             let full = std::mem::replace(&mut self.items, Vec::with_capacity(BATCH_ITEMS));
             (self.send)(full)?;
+            self.spare = self.spares.take();
         }
         Ok(())
     }
@@ -835,7 +904,11 @@ impl OsmSink for BatchSink<'_> {
     }
 
     fn element(&mut self, op: Option<Op>, el: &RawElement) -> Result<(), SinkError> {
-        match Element::pack(el) {
+        let packed = match self.spare.pop() {
+            Some(Item::Element(_, mut e)) => e.refill(el).then_some(e),
+            _ => Element::pack(el),
+        };
+        match packed {
             Some(p) => self.push(Item::Element(op, p)),
             None => Ok(()),
         }
@@ -849,11 +922,14 @@ impl OsmSink for BatchSink<'_> {
 fn parse_xml(
     path: &Path,
     bytes: &AtomicU64,
+    spares: &Spares,
     send: &mut dyn FnMut(Vec<Item>) -> Result<(), SinkError>,
 ) -> Result<Option<Root>, IngestError> {
     let reader = open_counted(path, Some(bytes))?;
     let mut sink = BatchSink {
         items: Vec::with_capacity(BATCH_ITEMS),
+        spare: spares.take(),
+        spares,
         send,
     };
     let root = xml::read_osm(reader, &mut sink).map_err(|e| match e {
@@ -1013,15 +1089,6 @@ impl Squares {
 
 /// Changesets gathered before they are written, bounding the writer's memory on a huge input.
 const MAX_PENDING: usize = 1 << 20;
-
-fn refs_of(el: &RawElement) -> Option<Vec<u8>> {
-    match el.etype? {
-        ElementType::Node => None,
-        ElementType::Way => (!el.refs.is_empty()).then(|| pack_refs(el.refs.iter().copied())),
-        ElementType::Relation => (!el.members.is_empty())
-            .then(|| pack_refs(el.members.iter().map(|&(t, id)| member_code(t, id)))),
-    }
-}
 
 impl Writer<'_, '_> {
     fn apply(&mut self, item: &Item) -> Result<(), IngestError> {

@@ -73,14 +73,21 @@ const ELEMENTS_GENERATION: &str = "elements_generation";
 /// characters that XML 1.0 does not allow in attribute values, so no tag can contain them.
 #[must_use]
 pub fn pack_tags(tags: &[(String, String)]) -> String {
-    let mut s = String::with_capacity(tags.iter().map(|(k, v)| k.len() + v.len() + 2).sum());
-    for (k, v) in tags {
-        s.push_str(k);
-        s.push('\x1F');
-        s.push_str(v);
-        s.push('\x1E');
-    }
+    let mut s = String::new();
+    pack_tags_into(tags, &mut s);
     s
+}
+
+/// [`pack_tags`] into `out`, replacing what it held (its memory is reused).
+pub fn pack_tags_into(tags: &[(String, String)], out: &mut String) {
+    out.clear();
+    out.reserve(tags.iter().map(|(k, v)| k.len() + v.len() + 2).sum());
+    for (k, v) in tags {
+        out.push_str(k);
+        out.push('\x1F');
+        out.push_str(v);
+        out.push('\x1E');
+    }
 }
 
 /// Inverse of [`pack_tags`], borrowing from the packed string.
@@ -98,7 +105,15 @@ pub fn packed_tag<'a>(s: &'a str, key: &str) -> Option<&'a str> {
 /// Node refs (or relation members, as `id * 4 + type code`) as little-endian i64s.
 #[must_use]
 pub fn pack_refs(refs: impl IntoIterator<Item = i64>) -> Vec<u8> {
-    refs.into_iter().flat_map(i64::to_le_bytes).collect()
+    let mut out = Vec::new();
+    pack_refs_into(refs, &mut out);
+    out
+}
+
+/// [`pack_refs`] into `out`, replacing what it held (its memory is reused).
+pub fn pack_refs_into(refs: impl IntoIterator<Item = i64>, out: &mut Vec<u8>) {
+    out.clear();
+    out.extend(refs.into_iter().flat_map(i64::to_le_bytes));
 }
 
 /// Inverse of [`pack_refs`].
