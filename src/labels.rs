@@ -16,6 +16,8 @@ use std::collections::{BTreeMap, HashSet};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
+use rusqlite::OptionalExtension;
+
 use crate::store::{Store, StoreError};
 
 /// Word stems that say a changeset reverts, undoes or restores earlier work. Common practice,
@@ -323,21 +325,19 @@ impl RevertIndex {
     /// On database failure.
     pub fn load(store: &Store) -> Result<Self, StoreError> {
         let conn = store.conn();
-        // Every changeset of the database: the faster hasher, and comments borrowed from the
-        // row with one lower-casing buffer, instead of a string or two per changeset.
-        let mut created: foldhash::HashMap<i64, i64> = foldhash::HashMap::default();
+        // One pass over every changeset in key order (no sort), comments borrowed from the row
+        // with one lower-casing buffer; only the revert comments are kept. Their targets' start
+        // times are then read by key: holding every changeset's start time (about 42 MB at the
+        // 16x benchmark) and sorting the table by time were the report's largest costs that
+        // grew with the database (BENCHMARKS.md, "Lookups at scale").
         let mut candidates: Vec<(i64, i64, RevertComment)> = Vec::new();
         {
             let mut st = conn
-                .prepare("SELECT id, created_at, comment FROM changesets ORDER BY created_at, id")
+                .prepare("SELECT id, created_at, comment FROM changesets")
                 .map_err(|e| store.map_err(e))?;
             let mut rows = st.query([]).map_err(|e| store.map_err(e))?;
             let mut lower = String::new();
             while let Some(r) = rows.next().map_err(|e| store.map_err(e))? {
-                let (id, t): (i64, i64) = (
-                    r.get(0).map_err(|e| store.map_err(e))?,
-                    r.get(1).map_err(|e| store.map_err(e))?,
-                );
                 let comment = r
                     .get_ref(2)
                     .and_then(|v| {
@@ -346,13 +346,36 @@ impl RevertIndex {
                         })
                     })
                     .map_err(|e| store.map_err(e))?;
-                created.insert(id, t);
                 if comment.is_empty() || !may_mention_revert(comment, &mut lower) {
                     continue;
                 }
                 let rc = read_comment(comment);
                 if rc.reverts && !rc.changesets.is_empty() {
+                    let (id, t): (i64, i64) = (
+                        r.get(0).map_err(|e| store.map_err(e))?,
+                        r.get(1).map_err(|e| store.map_err(e))?,
+                    );
                     candidates.push((id, t, rc));
+                }
+            }
+        }
+        // In time order, as the reverts are listed.
+        candidates.sort_by_key(|c| (c.1, c.0));
+        let mut created: foldhash::HashMap<i64, Option<i64>> = foldhash::HashMap::default();
+        {
+            let mut st = conn
+                .prepare_cached("SELECT created_at FROM changesets WHERE id = ?1")
+                .map_err(|e| store.map_err(e))?;
+            for target in candidates
+                .iter()
+                .flat_map(|c| c.2.changesets.iter().copied())
+            {
+                if let std::collections::hash_map::Entry::Vacant(v) = created.entry(target) {
+                    let t = st
+                        .query_row([target], |r| r.get::<_, i64>(0))
+                        .optional()
+                        .map_err(|e| store.map_err(e))?;
+                    v.insert(t);
                 }
             }
         }
@@ -360,8 +383,8 @@ impl RevertIndex {
         for (id, t, rc) in candidates {
             let mut targets = Vec::new();
             for target in rc.changesets {
-                match created.get(&target) {
-                    Some(&tt) if target != id && tt <= t => targets.push(target),
+                match created.get(&target).copied().flatten() {
+                    Some(tt) if target != id && tt <= t => targets.push(target),
                     _ => index.unknown_targets += 1,
                 }
             }

@@ -113,7 +113,9 @@ pub fn pack_refs(refs: impl IntoIterator<Item = i64>) -> Vec<u8> {
 /// [`pack_refs`] into `out`, replacing what it held (its memory is reused).
 pub fn pack_refs_into(refs: impl IntoIterator<Item = i64>, out: &mut Vec<u8>) {
     out.clear();
-    out.extend(refs.into_iter().flat_map(i64::to_le_bytes));
+    let refs = refs.into_iter();
+    out.reserve(refs.size_hint().0 * 8);
+    out.extend(refs.flat_map(i64::to_le_bytes));
 }
 
 /// Inverse of [`pack_refs`].
