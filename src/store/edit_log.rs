@@ -233,11 +233,13 @@ impl BlockBuilder {
         if self.edits == 0 {
             return None;
         }
+        // The next block starts with as much room: growing it by doubling copied it.
+        let room = Vec::with_capacity(self.data.capacity());
         let block = Block {
             min_ts: self.min_ts,
             max_ts: self.max_ts,
             edits: self.edits,
-            data: std::mem::take(&mut self.data),
+            data: std::mem::replace(&mut self.data, room),
         };
         self.edits = 0;
         Some(block)
