@@ -36,7 +36,7 @@ use crate::sorted_keys::SortedKeys;
 use crate::store::edit_log::{get_varint, put_bytes, put_signed, put_varint, unzigzag};
 
 /// A block is closed once it holds this many bytes (a lookup scans at most one block).
-pub const BLOCK_BYTES: usize = 512;
+pub const BLOCK_BYTES: usize = 2048;
 const MAGIC: &[u8; 8] = b"HXVELEM1";
 const HEADER_BYTES: usize = 16;
 const FOOTER_BYTES: usize = 32;
