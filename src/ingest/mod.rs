@@ -858,7 +858,7 @@ fn parse_input(input: &Input, sender: &SyncSender<Msg>, spares: &Spares) {
 struct Spares(Mutex<Vec<Vec<Item>>>);
 
 /// Applied batches kept for reuse (a parser takes one per batch it fills).
-const SPARE_BATCHES: usize = 8;
+const SPARE_BATCHES: usize = 2;
 
 impl Spares {
     fn give(&self, items: Vec<Item>) {
