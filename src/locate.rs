@@ -80,6 +80,21 @@ impl Positions {
         Ok(c)
     }
 
+    /// Looks the nodes of `ids` up in id order, into the cache: the index is then read block
+    /// after block, each block once, instead of in the order the ways name their nodes, where
+    /// one block came back many times once the index outgrew its block cache (BENCHMARKS.md,
+    /// "Lookups at scale").
+    fn prefetch(&mut self, mut ids: Vec<i64>) -> Result<(), StoreError> {
+        ids.sort_unstable();
+        ids.dedup();
+        for id in ids {
+            if let std::collections::hash_map::Entry::Vacant(v) = self.cache.entry(id) {
+                v.insert(self.nodes.get(id)?.map(|e| e.coord));
+            }
+        }
+        Ok(())
+    }
+
     fn stored_refs(&self, t: ElementType, id: i64) -> Result<Option<Vec<u8>>, StoreError> {
         Ok(self.elements.get(t, id)?.and_then(|r| r.refs))
     }
@@ -259,7 +274,26 @@ impl<'a> Locator<'a> {
         // (the index's block cache serves the next).
         index.cache.clear();
         let coord = |p: Option<(i32, i32)>| p.and_then(|(a, b)| Coord::from_e7(a.into(), b.into()));
-        let rows = store.edits(from, to)?.into_iter().map(|e| {
+        let stored = store.edits(from, to)?;
+        // The nodes this window's unplaced edits will ask for (a way's or relation's stored
+        // refs are only known later; those few are looked up as they come).
+        let mut wanted = Vec::new();
+        for e in stored.iter().filter(|e| e.pos.is_none()) {
+            match (e.etype, &e.refs) {
+                (ElementType::Node, _) => wanted.push(e.eid),
+                (ElementType::Way, Some(r)) => wanted.extend(unpack_refs(r)),
+                (ElementType::Relation, Some(r)) => wanted.extend(
+                    unpack_refs(r)
+                        .take(MAX_MEMBERS_FOR_CENTROID)
+                        .filter_map(member_decode)
+                        .filter(|m| m.0 == ElementType::Node)
+                        .map(|m| m.1),
+                ),
+                _ => {}
+            }
+        }
+        index.prefetch(wanted)?;
+        let rows = stored.into_iter().map(|e| {
             let pos = coord(e.pos);
             let (prev_tags, prev_version, prev_ts, prev_pos) = match e.prev {
                 Some(p) => (Some(p.tags), Some(p.version), p.ts, coord(p.pos)),
