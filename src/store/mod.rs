@@ -167,7 +167,11 @@ CREATE INDEX IF NOT EXISTS edit_blocks_ts ON edit_blocks(max_ts, min_ts);
 CREATE TABLE IF NOT EXISTS changeset_work(
     changeset INTEGER PRIMARY KEY, uid INTEGER NOT NULL, first_ts INTEGER NOT NULL,
     edits INTEGER NOT NULL, deletes INTEGER NOT NULL);
-CREATE INDEX IF NOT EXISTS changeset_work_uid ON changeset_work(uid, first_ts);
+-- Covering: a mapper's work is read from the index alone, not from one table row per
+-- changeset (the report's mapper histories, BENCHMARKS.md, Lookups at scale). It replaces the
+-- index of (uid, first_ts) that databases made before it carry.
+CREATE INDEX IF NOT EXISTS changeset_work_by_uid ON changeset_work(uid, first_ts, changeset, edits, deletes);
+DROP INDEX IF EXISTS changeset_work_uid;
 CREATE TABLE IF NOT EXISTS grid_first(square INTEGER PRIMARY KEY, first_ts INTEGER NOT NULL);
 CREATE TABLE IF NOT EXISTS skipped(reason TEXT PRIMARY KEY, count INTEGER NOT NULL);
 ";
