@@ -365,7 +365,7 @@ fn line_col(path: &Path, offset: u64) -> (u64, u64) {
 }
 
 /// An element version as the writer receives it: its tags and refs packed as they are stored
-/// ([`pack_tags`], [`pack_refs`]), on the parser's thread.
+/// ([`crate::store::pack_tags`], [`crate::store::pack_refs`]), on the parser's thread.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Element {
     pub etype: ElementType,
@@ -1374,6 +1374,71 @@ impl Writer<'_, '_> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_refilled_element_equals_a_freshly_packed_one() {
+        // Each kind of element refilled over each other kind (parsers reuse the elements of
+        // applied batches in any order): nothing of the earlier one may remain.
+        let c = crate::model::Coord::from_e7(452_000_000, -336_000_000);
+        let tag = |k: &str, v: &str| (k.to_owned(), v.to_owned());
+        let raws = [
+            RawElement {
+                etype: Some(ElementType::Node),
+                id: 7,
+                version: 3,
+                timestamp: 1000,
+                changeset: 11,
+                uid: 5,
+                user: "Quill Keeper".to_owned(),
+                visible: true,
+                coord: c,
+                tags: vec![tag("amenity", "bench"), tag("backrest", "yes")],
+                ..RawElement::default()
+            },
+            RawElement {
+                etype: Some(ElementType::Way),
+                id: 8,
+                version: 1,
+                changeset: 12,
+                user: "A".to_owned(),
+                visible: true,
+                refs: vec![1, 2, 3, 1],
+                tags: vec![tag("building", "yes")],
+                ..RawElement::default()
+            },
+            RawElement {
+                etype: Some(ElementType::Relation),
+                id: 9,
+                version: 2,
+                members: vec![(ElementType::Way, 8), (ElementType::Node, 7)],
+                ..RawElement::default()
+            },
+            RawElement {
+                etype: Some(ElementType::Way),
+                id: 10,
+                visible: false,
+                ..RawElement::default()
+            },
+            RawElement {
+                etype: Some(ElementType::Node),
+                id: 12,
+                coord: c,
+                ..RawElement::default()
+            },
+        ];
+        for a in &raws {
+            for b in &raws {
+                let mut e = Element::pack(a).unwrap();
+                assert!(e.refill(b));
+                assert_eq!(Some(e), Element::pack(b), "{a:?} refilled with {b:?}");
+            }
+        }
+        let untyped = RawElement::default();
+        let mut e = Element::pack(&raws[0]).unwrap();
+        assert!(!e.refill(&untyped), "no type: refused");
+        assert_eq!(Some(e), Element::pack(&raws[0]), "and left as it was");
+        assert_eq!(Element::pack(&untyped), None);
+    }
 
     #[test]
     fn squares_keep_the_earliest_time_of_each_square() {
