@@ -15,12 +15,8 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 scales=("$@"); [ ${#scales[@]} -gt 0 ] || scales=(1 4 16)
-cargo build --release --bin hexvigil
-bin=$(realpath "${HEXVIGIL:-target/release/hexvigil}")
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
-echo "machine: $(nproc) cores, $(free -g | awk '/Mem:/ {print $2}') GiB, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ //'), $(uname -sr)"
-echo "binary: $bin ($(git rev-parse --short HEAD))"
+. bench/common.sh
+bench_setup
 
 runs=${RUNS:-1}
 timed() { # label, command...: runs it $RUNS times; sets secs, mib, cpu of the fastest; prints a row

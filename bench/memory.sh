@@ -12,12 +12,8 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 scales=("$@"); [ ${#scales[@]} -gt 0 ] || scales=(16 32)
-cargo build --release --bin hexvigil
-bin=$(realpath "${HEXVIGIL:-target/release/hexvigil}")
-work=$(mktemp -d)
-trap 'rm -rf "$work"' EXIT
-echo "machine: $(nproc) cores, $(free -g | awk '/Mem:/ {print $2}') GiB, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ //'), $(uname -sr)"
-echo "binary: $bin ($(git rev-parse --short HEAD))"
+. bench/common.sh
+bench_setup
 
 timed() { # label, command...: prints a row
     local label=$1; shift
