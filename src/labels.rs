@@ -327,9 +327,9 @@ impl RevertIndex {
         let conn = store.conn();
         // One pass over every changeset in key order (no sort), comments borrowed from the row
         // with one lower-casing buffer; only the revert comments are kept. Their targets' start
-        // times are then read by key: holding every changeset's start time (about 42 MB at the
-        // 16x benchmark) and sorting the table by time were the report's largest costs that
-        // grew with the database (BENCHMARKS.md, "Lookups at scale").
+        // times are then read by key, instead of holding every changeset's start time (about
+        // 42 MB at the 16x benchmark) and sorting the table by time (BENCHMARKS.md, "Lookups
+        // at scale").
         let mut candidates: Vec<(i64, i64, RevertComment)> = Vec::new();
         {
             let mut st = conn
