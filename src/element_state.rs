@@ -17,14 +17,17 @@
 //! each ingest that changes it, by the protocol of [`crate::generations`] (the node-location
 //! index's too). Generation 0 is the empty state and has no file.
 //!
-//! ## File format (version 1)
-//! `HXVELEM1` and 8 zero bytes; blocks of records sorted by (element type, id), each record
+//! ## File format (version 2)
+//! `HXVELEM2` and 8 zero bytes; blocks of records sorted by (element type, id), each record
 //! `type: u8, id: zigzag varint, body length: varint, body`; the directory (per block: type
 //! `u8`, first id `i64` and offset `u64`, little-endian); a footer of directory offset, block
-//! count and row count (`u64` each) and `HXVELEM1`. A body is `version, timestamp` (zigzag
+//! count and row count (`u64` each) and `HXVELEM2`. A body is `version, timestamp` (zigzag
 //! varints), a flags byte (1 visible, 2 has a position, 4 has refs), latitude and longitude
 //! (zigzag varints, when present), the packed tags (length and bytes) and the packed refs
-//! (length and bytes, when present).
+//! (length and bytes, when present; [`crate::store::pack_refs`]).
+//!
+//! Version 1 (`HXVELEM1`), written before, differs only in its refs: little-endian `i64`s. Its
+//! rows are repacked as they are read, and the next ingest writes version 2.
 
 use std::fs::File;
 use std::io::{BufWriter, Write};
@@ -37,7 +40,9 @@ use crate::store::edit_log::{get_varint, put_bytes, put_signed, put_varint, unzi
 
 /// A block is closed once it holds this many bytes (a lookup scans at most one block).
 pub const BLOCK_BYTES: usize = 2048;
-const MAGIC: &[u8; 8] = b"HXVELEM1";
+const MAGIC: &[u8; 8] = b"HXVELEM2";
+/// Files of version 1, whose refs are little-endian `i64`s.
+const MAGIC_LEGACY_REFS: &[u8; 8] = b"HXVELEM1";
 const HEADER_BYTES: usize = 16;
 const FOOTER_BYTES: usize = 32;
 const DIR_ENTRY_BYTES: usize = 17;
@@ -277,6 +282,43 @@ fn decode(body: &[u8]) -> Option<Row> {
     })
 }
 
+/// Rewrites a body of a version-1 file (refs as little-endian `i64`s) as version 2 has it, into
+/// `out`; `None` when it does not decode.
+fn upgrade_legacy_body(body: &[u8], out: &mut Vec<u8>) -> Option<()> {
+    let mut c = Cursor { data: body, at: 0 };
+    let version = c.signed()?;
+    let ts = c.signed()?;
+    let flags = c.byte()?;
+    let pos = if flags & HAS_POS != 0 {
+        let lat = i32::try_from(c.signed()?).ok()?;
+        let lon = i32::try_from(c.signed()?).ok()?;
+        Some((lat, lon))
+    } else {
+        None
+    };
+    let tags = std::str::from_utf8(c.bytes()?).ok()?;
+    let mut refs = Vec::new();
+    if flags & HAS_REFS != 0 {
+        crate::store::repack_legacy_refs(c.bytes()?, &mut refs);
+    }
+    if c.at != body.len() {
+        return None;
+    }
+    out.clear();
+    encode(
+        &RowRef {
+            version,
+            ts,
+            visible: flags & VISIBLE != 0,
+            pos,
+            tags,
+            refs: (flags & HAS_REFS != 0).then_some(refs.as_slice()),
+        },
+        out,
+    );
+    Some(())
+}
+
 /// A committed element-state file (or the empty state of generation 0), read-only.
 #[derive(Debug)]
 pub struct ElementState {
@@ -291,6 +333,8 @@ pub struct ElementState {
     rows: u64,
     /// The block last read by a lookup, and its number.
     block: std::cell::RefCell<(usize, Vec<u8>)>,
+    /// A version-1 file: each body is upgraded as it is read, into this buffer.
+    legacy: Option<std::cell::RefCell<Vec<u8>>>,
 }
 
 impl ElementState {
@@ -305,6 +349,7 @@ impl ElementState {
             blocks_end: 0,
             rows: 0,
             block: std::cell::RefCell::new((usize::MAX, Vec::new())),
+            legacy: None,
         }
     }
 
@@ -341,10 +386,14 @@ impl ElementState {
                 .map_err(io_err(path))?;
             Ok(b)
         };
-        if n < HEADER_BYTES + FOOTER_BYTES || read_at(0, 8)? != MAGIC || read_at(n - 8, 8)? != MAGIC
-        {
-            return Err(damaged("not an element-state file (bad size or magic)"));
+        if n < HEADER_BYTES + FOOTER_BYTES {
+            return Err(damaged("not an element-state file (too short)"));
         }
+        let magic = read_at(0, 8)?;
+        if (magic != MAGIC && magic != MAGIC_LEGACY_REFS) || read_at(n - 8, 8)? != magic {
+            return Err(damaged("not an element-state file (bad magic)"));
+        }
+        let legacy = magic == MAGIC_LEGACY_REFS;
         let word = |b: &[u8], at: usize| {
             b.get(at..at + 8)
                 .and_then(|b| b.try_into().ok())
@@ -394,6 +443,7 @@ impl ElementState {
             blocks_end: dir_at,
             rows,
             block: std::cell::RefCell::new((usize::MAX, Vec::new())),
+            legacy: legacy.then(|| std::cell::RefCell::new(Vec::new())),
         })
     }
 
@@ -440,6 +490,12 @@ impl ElementState {
         while c.at < c.data.len() {
             let (k, body) = c.record().ok_or_else(|| self.damaged("record cut short"))?;
             if k == key {
+                if let Some(up) = &self.legacy {
+                    let mut up = up.borrow_mut();
+                    upgrade_legacy_body(body, &mut up)
+                        .ok_or_else(|| self.damaged("row unreadable"))?;
+                    return Ok(Some(f(&up)));
+                }
                 return Ok(Some(f(body)));
             }
             if k > key {
@@ -556,13 +612,20 @@ impl Records for FileRecords<'_> {
         let Some(r) = self.reader.as_mut() else {
             return Ok(None);
         };
-        read_record_into(r, body).map_err(|e| match e {
+        let key = read_record_into(r, body).map_err(|e| match e {
             Some(io) => ElementStateError::Io {
                 path: self.state.path.clone(),
                 source: io,
             },
             None => self.state.damaged("record cut short"),
-        })
+        })?;
+        if let (Some(_), Some(up)) = (key, &self.state.legacy) {
+            let mut up = up.borrow_mut();
+            upgrade_legacy_body(body, &mut up)
+                .ok_or_else(|| self.state.damaged("row unreadable"))?;
+            std::mem::swap(body, &mut up);
+        }
+        Ok(key)
     }
 }
 
@@ -1248,5 +1311,97 @@ mod tests {
         std::fs::write(&broken, &bad).unwrap();
         let s = ElementState::open(&broken).unwrap();
         assert!(s.get(ElementType::Node, 3).is_err());
+    }
+
+    /// A file of version 1 (refs as little-endian `i64`s, written before) is read with its refs
+    /// packed as now, by lookups and scans, and the next ingest writes version 2.
+    #[test]
+    fn a_version_1_file_reads_with_refs_repacked_and_is_rewritten_as_version_2() {
+        let dir = tempfile::tempdir().unwrap();
+        let prefix = dir.path().join("v.db.elements");
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(21);
+        let mut raw_rows = BTreeMap::new();
+        let mut tx = ElementStateTx::begin(&prefix, 0).unwrap();
+        for i in 0..600 {
+            let t = TYPES[i % 3];
+            let mut row = random_row(&mut rng, 1);
+            row.refs = row.refs.map(|_| {
+                let first: i64 = rng.gen_range(-5..1_000_000_000_000);
+                (0..rng.gen_range(0..40))
+                    .map(|k| first + k * rng.gen_range(-3..4))
+                    .chain([i64::MIN, i64::MAX].into_iter().take(i % 4 / 2))
+                    .flat_map(i64::to_le_bytes)
+                    .collect()
+            });
+            tx.put(true, t, i as i64, &as_ref(&row)).unwrap();
+            raw_rows.insert((t, i as i64), row);
+        }
+        let g = tx.prepare().unwrap().unwrap();
+        let committed = g.generation();
+        g.committed();
+        // The same bytes under the older magic are a version-1 file.
+        let path = generations::path(&prefix, committed);
+        let mut bytes = std::fs::read(&path).unwrap();
+        let n = bytes.len();
+        bytes[..8].copy_from_slice(MAGIC_LEGACY_REFS);
+        bytes[n - 8..].copy_from_slice(MAGIC_LEGACY_REFS);
+        std::fs::write(&path, &bytes).unwrap();
+
+        let expected: BTreeMap<(ElementType, i64), Row> = raw_rows
+            .iter()
+            .map(|(&k, r)| {
+                let mut r = r.clone();
+                r.refs = r.refs.map(|raw| {
+                    let mut packed = Vec::new();
+                    crate::store::repack_legacy_refs(&raw, &mut packed);
+                    packed
+                });
+                (k, r)
+            })
+            .collect();
+        let old = ElementState::open(&path).unwrap();
+        for (&(t, id), row) in &expected {
+            assert_eq!(old.get(t, id).unwrap().as_ref(), Some(row), "{t:?} {id}");
+        }
+        let scanned: BTreeMap<_, _> = old
+            .rows()
+            .map(|r| r.map(|(t, id, row)| ((t, id), row)))
+            .collect::<Result<_, _>>()
+            .unwrap();
+        assert_eq!(scanned, expected);
+        // Unpacked, the repacked refs are the numbers the old file held.
+        let (&k, r) = raw_rows
+            .iter()
+            .find(|(_, r)| r.refs.as_ref().is_some_and(|b| b.len() > 16))
+            .unwrap();
+        let raw = r.refs.as_deref().unwrap();
+        let numbers: Vec<i64> = raw
+            .chunks_exact(8)
+            .map(|c| i64::from_le_bytes(c.try_into().unwrap()))
+            .collect();
+        let packed = old.get(k.0, k.1).unwrap().unwrap().refs.unwrap();
+        assert_eq!(
+            crate::store::unpack_refs(&packed).collect::<Vec<_>>(),
+            numbers
+        );
+        assert!(packed.len() < raw.len());
+
+        // The next ingest merges the old rows into a version-2 file.
+        let mut tx = ElementStateTx::begin(&prefix, committed).unwrap();
+        let extra = random_row(&mut rng, 2);
+        tx.put(true, ElementType::Way, 10_000, &as_ref(&extra))
+            .unwrap();
+        let g = tx.prepare().unwrap().unwrap();
+        let next = std::fs::read(generations::path(&prefix, g.generation())).unwrap();
+        assert_eq!(&next[..8], MAGIC);
+        let new = ElementState::open_generation(&prefix, g.generation()).unwrap();
+        let mut want = expected;
+        want.insert((ElementType::Way, 10_000), extra);
+        let scanned: BTreeMap<_, _> = new
+            .rows()
+            .map(|r| r.map(|(t, id, row)| ((t, id), row)))
+            .collect::<Result<_, _>>()
+            .unwrap();
+        assert_eq!(scanned, want);
     }
 }

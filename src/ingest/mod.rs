@@ -381,8 +381,10 @@ pub struct Element {
     pub pos: Option<(i32, i32)>,
     /// Packed tags.
     pub tags: String,
-    /// Packed node refs of a way, or members of a relation ([`member_code`]).
-    pub refs: Option<Vec<u8>>,
+    /// Packed node refs of a way, or members of a relation ([`member_code`]); empty when it
+    /// has none (a node's buffer is kept for the way a refill may make of it), see
+    /// [`Element::refs`].
+    pub refs: Vec<u8>,
 }
 
 impl Element {
@@ -391,6 +393,12 @@ impl Element {
     pub fn coord(&self) -> Option<crate::model::Coord> {
         self.pos
             .and_then(|(a, b)| crate::model::Coord::from_e7(a.into(), b.into()))
+    }
+
+    /// The packed refs or members, `None` when there are none.
+    #[must_use]
+    pub fn refs(&self) -> Option<&[u8]> {
+        (!self.refs.is_empty()).then_some(self.refs.as_slice())
     }
 
     /// Packs a read element; `None` when the reader could not tell its type.
@@ -407,7 +415,7 @@ impl Element {
             visible: false,
             pos: None,
             tags: String::new(),
-            refs: None,
+            refs: Vec::new(),
         };
         e.refill(el).then_some(e)
     }
@@ -429,22 +437,16 @@ impl Element {
         self.visible = el.visible;
         self.pos = el.coord.map(|c| (c.lat_e7(), c.lon_e7()));
         pack_tags_into(&el.tags, &mut self.tags);
-        let mut refs = self.refs.take().unwrap_or_default();
-        let has_refs = match etype {
-            ElementType::Node => false,
-            ElementType::Way => {
-                pack_refs_into(el.refs.iter().copied(), &mut refs);
-                !el.refs.is_empty()
-            }
-            ElementType::Relation => {
-                pack_refs_into(
-                    el.members.iter().map(|&(t, id)| member_code(t, id)),
-                    &mut refs,
-                );
-                !el.members.is_empty()
-            }
-        };
-        self.refs = has_refs.then_some(refs);
+        // Packing nothing leaves the buffer empty (a node, a way without refs) but keeps its
+        // room for the element packed into it next.
+        match etype {
+            ElementType::Node => self.refs.clear(),
+            ElementType::Way => pack_refs_into(el.refs.iter().copied(), &mut self.refs),
+            ElementType::Relation => pack_refs_into(
+                el.members.iter().map(|&(t, id)| member_code(t, id)),
+                &mut self.refs,
+            ),
+        }
         true
     }
 }
@@ -857,8 +859,11 @@ fn parse_input(input: &Input, sender: &SyncSender<Msg>, spares: &Spares) {
 #[derive(Default)]
 struct Spares(Mutex<Vec<Vec<Item>>>);
 
-/// Applied batches kept for reuse (a parser takes one per batch it fills).
-const SPARE_BATCHES: usize = 2;
+/// Applied batches kept for reuse (a parser takes one per batch it fills). On one core the
+/// writer applies a whole queue of batches at a time, so the pool holds a queue's worth: with
+/// room for 2, the rest were dropped and their successors allocated afresh (growing buffers took
+/// 3.8 % of a 4x ingest's samples, 2.8 % with this pool; BENCHMARKS.md, session 8).
+const SPARE_BATCHES: usize = QUEUED_BATCHES + 2;
 
 impl Spares {
     fn give(&self, items: Vec<Item>) {
@@ -1126,7 +1131,7 @@ impl Writer<'_, '_> {
         let node_inside = |id: i64| -> Result<bool, StoreError> {
             Ok(self.nodes.get(id)?.is_some_and(|e| c.contains(e.coord)))
         };
-        let refs = el.refs.as_deref().map(unpack_refs);
+        let refs = el.refs().map(unpack_refs);
         Ok(match t {
             ElementType::Node => match el.coord() {
                 Some(p) => c.contains(p),
@@ -1284,7 +1289,7 @@ impl Writer<'_, '_> {
             }
         }
         let newer = prev.as_ref().is_none_or(|p| p.version < el.version);
-        let (tags, refs) = (&el.tags, &el.refs);
+        let (tags, refs) = (&el.tags, el.refs());
         if let Some(op) = op {
             let replaced = prev.as_ref().filter(|p| p.version < el.version);
             self.log.push(&EditRef {
@@ -1298,7 +1303,7 @@ impl Writer<'_, '_> {
                 ts: el.timestamp,
                 pos,
                 tags,
-                refs: refs.as_deref(),
+                refs,
                 prev: replaced.map(|p| PrevRef {
                     version: p.version,
                     ts: p.ts,
@@ -1364,7 +1369,7 @@ impl Writer<'_, '_> {
                 visible: true,
                 pos,
                 tags,
-                refs: refs.as_deref(),
+                refs,
             }
         };
         Ok(self.state.put(!fresh, t, el.id, &row)?)

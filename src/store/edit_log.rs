@@ -3,7 +3,7 @@
 //! row per edit. An ingest only appends, so it does no B-tree work per edit; readers select the
 //! blocks whose time span meets their window and decode them.
 //!
-//! A block's payload is a format byte (1) and then, per edit, in order:
+//! A block's payload is a format byte (2) and then, per edit, in order:
 //!
 //! | field | encoding |
 //! |---|---|
@@ -15,6 +15,9 @@
 //! | tags | varint length and the packed tags ([`super::pack_tags`]) |
 //! | refs | when flag bit 5: varint length and the packed refs ([`super::pack_refs`]) |
 //! | earlier state | when flag bit 6: a byte (bit 0 has a timestamp, bit 1 has a position), the version (zigzag), the timestamp as a zigzag difference from this edit's, the packed tags (length and bytes), the position (zigzag, absolute) |
+//!
+//! Blocks of format 1, written before, differ only in their refs: little-endian `i64`s. They
+//! are read as they are and their refs repacked ([`super::repack_legacy_refs`]).
 //!
 //! Varints are LEB128 (7 bits per byte, low first); zigzag maps signed to unsigned (Source:
 //! Protocol Buffers encoding guide, "Base 128 Varints" and "ZigZag encoding").
@@ -32,7 +35,10 @@ pub const BLOCK_EDITS: usize = 8192;
 /// Payload bytes per block before it is written (a block of large edits closes early).
 pub const BLOCK_BYTES: usize = 4 << 20;
 
-const FORMAT: u8 = 1;
+/// The format byte of blocks written now (refs packed as varint differences).
+const FORMAT: u8 = 2;
+/// The format byte of older blocks, whose refs are little-endian `i64`s.
+const FORMAT_LEGACY_REFS: u8 = 1;
 
 /// One edit as read back from the log.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -320,6 +326,8 @@ struct RawEdit<'a> {
     pos: Option<(i32, i32)>,
     tags: &'a [u8],
     refs: Option<&'a [u8]>,
+    /// The refs are little-endian `i64`s (a block of format 1).
+    legacy_refs: bool,
     prev: Option<RawPrev<'a>>,
     /// Byte offset just after the edit (for errors).
     end: usize,
@@ -340,9 +348,11 @@ fn walk<'a>(
     mut visit: impl FnMut(&RawEdit<'a>, &HashMap<i64, &'a [u8]>) -> Result<(), DecodeError>,
 ) -> Result<(), DecodeError> {
     let mut c = Cursor { data, at: 0 };
-    if c.byte()? != FORMAT {
-        return Err(c.fail("unknown block format"));
-    }
+    let legacy_refs = match c.byte()? {
+        FORMAT => false,
+        FORMAT_LEGACY_REFS => true,
+        _ => return Err(c.fail("unknown block format")),
+    };
     let mut last = Last::default();
     let mut users: HashMap<i64, &'a [u8]> = HashMap::new();
     while c.at < data.len() {
@@ -408,6 +418,7 @@ fn walk<'a>(
             pos,
             tags,
             refs,
+            legacy_refs,
             prev,
             end: c.at,
         };
@@ -461,7 +472,15 @@ pub fn decode(
             ts: e.ts,
             pos: e.pos,
             tags: text(e.tags)?,
-            refs: e.refs.map(<[u8]>::to_vec),
+            refs: e.refs.map(|r| {
+                if e.legacy_refs {
+                    let mut packed = Vec::new();
+                    super::repack_legacy_refs(r, &mut packed);
+                    packed
+                } else {
+                    r.to_vec()
+                }
+            }),
             prev: match &e.prev {
                 Some(p) => Some(PrevState {
                     version: p.version,
@@ -578,6 +597,38 @@ mod tests {
                 pos: p.pos,
             }),
         });
+    }
+
+    /// A block of format 1 (written before: refs as little-endian `i64`s) decodes with its refs
+    /// packed as now; nothing else in it differs.
+    #[test]
+    fn a_format_1_block_decodes_with_its_refs_repacked() {
+        let edits: Vec<StoredEdit> = (0..60).map(sample).collect();
+        let numbers = |i: i64| [i, -i, i64::MAX, 5_000_000_000 + i];
+        let mut b = BlockBuilder::default();
+        for (i, e) in (0..).zip(&edits) {
+            let mut old = e.clone();
+            old.refs = old
+                .refs
+                .map(|_| numbers(i).iter().flat_map(|n| n.to_le_bytes()).collect());
+            push(&mut b, &old);
+        }
+        let mut block = b.take().unwrap();
+        assert_eq!(block.data[0], FORMAT);
+        block.data[0] = FORMAT_LEGACY_REFS;
+        let mut back = Vec::new();
+        decode(&block.data, |_| true, &mut back).unwrap();
+        let want: Vec<StoredEdit> = (0..)
+            .zip(&edits)
+            .map(|(i, e)| {
+                let mut e = e.clone();
+                e.refs = e.refs.map(|_| super::super::pack_refs(numbers(i)));
+                e
+            })
+            .collect();
+        assert_eq!(back, want);
+        block.data[0] = 3;
+        assert!(decode(&block.data, |_| true, &mut back).is_err());
     }
 
     #[test]

@@ -102,7 +102,12 @@ pub fn packed_tag<'a>(s: &'a str, key: &str) -> Option<&'a str> {
     unpack_tags(s).find(|(k, _)| *k == key).map(|(_, v)| v)
 }
 
-/// Node refs (or relation members, as `id * 4 + type code`) as little-endian i64s.
+/// Node refs (or relation members, as `id * 4 + type code`), packed: the first as a zigzag
+/// varint, each next one as the zigzag varint of its difference from the one before. A way's
+/// nodes are mostly numbered close together, so a ref takes one or two bytes instead of eight
+/// (BENCHMARKS.md, "Refs as varint differences"). Edit-log blocks of format 1 and element-state
+/// files of version 1 hold refs as little-endian `i64`s instead; their readers repack them
+/// ([`repack_legacy_refs`]).
 #[must_use]
 pub fn pack_refs(refs: impl IntoIterator<Item = i64>) -> Vec<u8> {
     let mut out = Vec::new();
@@ -114,17 +119,37 @@ pub fn pack_refs(refs: impl IntoIterator<Item = i64>) -> Vec<u8> {
 pub fn pack_refs_into(refs: impl IntoIterator<Item = i64>, out: &mut Vec<u8>) {
     out.clear();
     let refs = refs.into_iter();
-    out.reserve(refs.size_hint().0 * 8);
-    out.extend(refs.flat_map(i64::to_le_bytes));
+    out.reserve(refs.size_hint().0 * 2);
+    let mut last = 0i64;
+    for r in refs {
+        edit_log::put_signed(out, r.wrapping_sub(last));
+        last = r;
+    }
 }
 
-/// Inverse of [`pack_refs`].
+/// Inverse of [`pack_refs`]; it stops where the bytes stop making a varint.
 pub fn unpack_refs(b: &[u8]) -> impl Iterator<Item = i64> + '_ {
-    b.chunks_exact(8).map(|c| {
-        let mut a = [0u8; 8];
-        a.copy_from_slice(c);
-        i64::from_le_bytes(a)
+    let mut at = 0;
+    let mut last = 0i64;
+    std::iter::from_fn(move || {
+        let d = edit_log::get_varint(b, &mut at)?;
+        last = last.wrapping_add(edit_log::unzigzag(d));
+        Some(last)
     })
+}
+
+/// Refs stored the older way, as little-endian `i64`s (edit-log blocks of format 1,
+/// element-state files of version 1, the refs columns of schemas 1 and 2), packed as
+/// [`pack_refs`] does into `out`.
+pub(crate) fn repack_legacy_refs(raw: &[u8], out: &mut Vec<u8>) {
+    pack_refs_into(
+        raw.chunks_exact(8).map(|c| {
+            let mut a = [0u8; 8];
+            a.copy_from_slice(c);
+            i64::from_le_bytes(a)
+        }),
+        out,
+    );
 }
 
 /// Encodes a relation member for [`pack_refs`].
@@ -307,7 +332,12 @@ impl Store {
                 let lat: Option<i32> = r.get(5).map_err(err)?;
                 let lon: Option<i32> = r.get(6).map_err(err)?;
                 let tags: String = r.get(7).map_err(err)?;
-                let refs: Option<Vec<u8>> = r.get(8).map_err(err)?;
+                let raw: Option<Vec<u8>> = r.get(8).map_err(err)?;
+                let refs = raw.map(|raw| {
+                    let mut packed = Vec::new();
+                    repack_legacy_refs(&raw, &mut packed);
+                    packed
+                });
                 let row = RowRef {
                     version: r.get(2).map_err(err)?,
                     ts: r.get(3).map_err(err)?,
@@ -435,7 +465,12 @@ impl Store {
                 };
                 let user: String = r.get(6).map_err(err)?;
                 let tags: String = r.get(10).map_err(err)?;
-                let refs: Option<Vec<u8>> = r.get(11).map_err(err)?;
+                let raw: Option<Vec<u8>> = r.get(11).map_err(err)?;
+                let refs = raw.map(|raw| {
+                    let mut packed = Vec::new();
+                    repack_legacy_refs(&raw, &mut packed);
+                    packed
+                });
                 let prev_version: Option<i64> = r.get(12).map_err(err)?;
                 let prev_tags: Option<String> = r.get(14).map_err(err)?;
                 let e = edit_log::EditRef {
@@ -1186,6 +1221,23 @@ mod tests {
             unpack_refs(&r).collect::<Vec<_>>(),
             vec![1, -2, i64::MAX / 8]
         );
+        // 150 is zigzag 300, the varint AC 02; the step of -1 is zigzag 1, one byte.
+        // Source: Protocol Buffers encoding guide ("Base 128 Varints": 300 is ac 02; "ZigZag
+        // encoding": -1 maps to 1).
+        assert_eq!(pack_refs([150, 149]), [0xAC, 0x02, 0x01]);
+        let extremes = [i64::MIN, i64::MAX, 0, i64::MIN, -1, i64::MAX];
+        assert_eq!(
+            unpack_refs(&pack_refs(extremes)).collect::<Vec<_>>(),
+            extremes
+        );
+        // Refs as older files hold them, little-endian i64s, repacked.
+        let raw: Vec<u8> = extremes.iter().flat_map(|v| v.to_le_bytes()).collect();
+        let mut packed = vec![9; 3];
+        repack_legacy_refs(&raw, &mut packed);
+        assert_eq!(packed, pack_refs(extremes));
+        // A cut varint ends the refs; nothing past it is made up.
+        let cut = &pack_refs([1, 300])[..2];
+        assert_eq!(unpack_refs(cut).collect::<Vec<_>>(), vec![1]);
         for (t, id) in [
             (ElementType::Node, 5),
             (ElementType::Way, 77),
