@@ -4,6 +4,8 @@
 #   (a) the floor: `gzip -dc` over all diffs,
 #   (b) bench/count_cells.py (pyosmium + h3: snapshot into a location index, cells per diff),
 #   (c) hexvigil ingest (snapshot, changesets, all diffs), the report after it, and both,
+#       and the ingest of the diffs alone into a database that holds the snapshot and the
+#       changesets already (the floor's own files: the weekly run),
 # each pinned to one core (taskset -c 0), hexvigil also on all cores; wall time, element
 # changes per second, CPU time (user + system: steadier than wall time on a busy machine), peak
 # resident memory (GNU time), ratios of wall times to (a) and (b), load average.
@@ -25,6 +27,7 @@ timed() { # label, command...: runs it $RUNS times; sets secs, mib, cpu of the f
     local i s
     secs=
     for ((i = 0; i < runs; i++)); do
+        if [ -n "${prep:-}" ]; then eval "$prep"; fi  # untimed set-up before each run
         sync
         /usr/bin/time -v -o "$work/t" "$@" > "$work/out" 2> "$work/err" || { cat "$work/err"; exit 1; }
         s=$(awk -F': ' '/Elapsed \(wall clock\)/ {n=split($2,p,":"); s=0; for(i=1;i<=n;i++) s=s*60+p[i]; print s}' "$work/t")
@@ -67,6 +70,13 @@ for scale in "${scales[@]}"; do
     timed "(c) hexvigil ingest, 1 core" sh -c 'rm -f "$1" "$1"-wal "$1"-shm "$1".nodes.* "$1".elements.* "$1".edits; shift; exec taskset -c 0 "$@"' \
         - "$d/one.db" "$bin" --quiet ingest --db "$d/one.db" "${inputs[@]}"
     ingest1=$secs
+    # The diffs alone, into a copy of a database made from the snapshot and changesets.
+    "$bin" --quiet ingest --db "$d/base.db" "$d/input/snapshot.osm" "$d/input/changesets.osm"
+    prep='rm -f "$d"/diffs.db*; for f in "$d"/base.db*; do cp "$f" "$d/diffs.db${f#"$d"/base.db}"; done'
+    timed "(c) hexvigil ingest of the diffs alone (snapshot and changesets in before), 1 core" \
+        taskset -c 0 "$bin" --quiet ingest --db "$d/diffs.db" "${diffs[@]}"
+    prep=
+    rm -f "$d"/base.db* "$d"/diffs.db*
     timed "(c) hexvigil report (after the ingest), 1 core" taskset -c 0 "$bin" --quiet report --db "$d/one.db" --out "$d/rep1" "${areas[@]}"
     sum_row "ingest + report, 1 core" "$ingest1" "$secs"
     timed "(c) hexvigil ingest, $(nproc) cores" sh -c 'rm -f "$1" "$1"-wal "$1"-shm "$1".nodes.* "$1".elements.* "$1".edits; shift; exec "$@"' \
