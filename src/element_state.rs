@@ -285,34 +285,21 @@ fn decode(body: &[u8]) -> Option<Row> {
 /// Rewrites a body of a version-1 file (refs as little-endian `i64`s) as version 2 has it, into
 /// `out`; `None` when it does not decode.
 fn upgrade_legacy_body(body: &[u8], out: &mut Vec<u8>) -> Option<()> {
-    let mut c = Cursor { data: body, at: 0 };
-    let version = c.signed()?;
-    let ts = c.signed()?;
-    let flags = c.byte()?;
-    let pos = if flags & HAS_POS != 0 {
-        let lat = i32::try_from(c.signed()?).ok()?;
-        let lon = i32::try_from(c.signed()?).ok()?;
-        Some((lat, lon))
-    } else {
-        None
-    };
-    let tags = std::str::from_utf8(c.bytes()?).ok()?;
-    let mut refs = Vec::new();
-    if flags & HAS_REFS != 0 {
-        crate::store::repack_legacy_refs(c.bytes()?, &mut refs);
-    }
-    if c.at != body.len() {
-        return None;
-    }
+    let row = decode(body)?;
+    let refs = row.refs.as_deref().map(|raw| {
+        let mut packed = Vec::new();
+        crate::store::repack_legacy_refs(raw, &mut packed);
+        packed
+    });
     out.clear();
     encode(
         &RowRef {
-            version,
-            ts,
-            visible: flags & VISIBLE != 0,
-            pos,
-            tags,
-            refs: (flags & HAS_REFS != 0).then_some(refs.as_slice()),
+            version: row.version,
+            ts: row.ts,
+            visible: row.visible,
+            pos: row.pos,
+            tags: &row.tags,
+            refs: refs.as_deref(),
         },
         out,
     );
