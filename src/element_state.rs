@@ -1350,12 +1350,13 @@ mod tests {
         for (&(t, id), row) in &expected {
             assert_eq!(old.get(t, id).unwrap().as_ref(), Some(row), "{t:?} {id}");
         }
-        let scanned: BTreeMap<_, _> = old
-            .rows()
-            .map(|r| r.map(|(t, id, row)| ((t, id), row)))
-            .collect::<Result<_, _>>()
-            .unwrap();
-        assert_eq!(scanned, expected);
+        let all_rows = |s: &ElementState| -> BTreeMap<(ElementType, i64), Row> {
+            s.rows()
+                .map(|r| r.map(|(t, id, row)| ((t, id), row)))
+                .collect::<Result<_, _>>()
+                .unwrap()
+        };
+        assert_eq!(all_rows(&old), expected);
         // Unpacked, the repacked refs are the numbers the old file held.
         let (&k, r) = raw_rows
             .iter()
@@ -1384,11 +1385,6 @@ mod tests {
         let new = ElementState::open_generation(&prefix, g.generation()).unwrap();
         let mut want = expected;
         want.insert((ElementType::Way, 10_000), extra);
-        let scanned: BTreeMap<_, _> = new
-            .rows()
-            .map(|r| r.map(|(t, id, row)| ((t, id), row)))
-            .collect::<Result<_, _>>()
-            .unwrap();
-        assert_eq!(scanned, want);
+        assert_eq!(all_rows(&new), want);
     }
 }
