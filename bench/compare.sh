@@ -52,14 +52,7 @@ echo
 echo "| scale | run | wall time | CPU time | element changes/s | peak memory | × (a) | × (b) | load avg |"
 echo "|---|---|---|---|---|---|---|---|---|"
 for scale in "${scales[@]}"; do
-    d="$work/x$scale"
-    if [ -n "${INPUTS:-}" ] && [ -d "$INPUTS/x$scale/input" ]; then
-        mkdir -p "$d" && ln -s "$(realpath "$INPUTS/x$scale/input")" "$d/input"
-    else
-        "$bin" --quiet demo --out "$d" --intensity $((6 * scale)) --inputs-only
-    fi
-    mapfile -t diffs < <(find "$d/input/diffs" -name '*.osc.gz' | sort)
-    elements=$(gzip -dc "${diffs[@]}" | grep -c -E '<(node|way|relation)[ >]')
+    bench_inputs "$scale"
     echo "| $scale | input: intensity $((6 * scale)), ${#diffs[@]} diffs, $elements element changes, $(du -cb "${diffs[@]}" | tail -1 | cut -f1) bytes gzip | | | | | | | |"
     floor=; py=
     # The floor is cheap and every ratio divides by it: at least 5 runs, the fastest kept (on a

@@ -20,14 +20,7 @@ echo "| scale | element changes | instructions | per element change | × first s
 echo "|---|---|---|---|---|"
 first=
 for scale in "${scales[@]}"; do
-    d="$work/x$scale"
-    if [ -n "${INPUTS:-}" ] && [ -d "$INPUTS/x$scale/input" ]; then
-        mkdir -p "$d" && ln -s "$(realpath "$INPUTS/x$scale/input")" "$d/input"
-    else
-        "$bin" --quiet demo --out "$d" --intensity $((6 * scale)) --inputs-only
-    fi
-    mapfile -t diffs < <(find "$d/input/diffs" -name '*.osc.gz' | sort)
-    elements=$(gzip -dc "${diffs[@]}" | grep -c -E '<(node|way|relation)[ >]')
+    bench_inputs "$scale"
     taskset -c 0 valgrind --tool=callgrind --callgrind-out-file="$work/cg.out" \
         --dump-instr=no --collect-jumps=no \
         "$bin" --quiet ingest --db "$d/state.db" "$d/input/snapshot.osm" \
