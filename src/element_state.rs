@@ -286,11 +286,7 @@ fn decode(body: &[u8]) -> Option<Row> {
 /// `out`; `None` when it does not decode.
 fn upgrade_legacy_body(body: &[u8], out: &mut Vec<u8>) -> Option<()> {
     let row = decode(body)?;
-    let refs = row.refs.as_deref().map(|raw| {
-        let mut packed = Vec::new();
-        crate::store::repack_legacy_refs(raw, &mut packed);
-        packed
-    });
+    let refs = row.refs.as_deref().map(crate::store::repack_legacy_refs);
     out.clear();
     encode(
         &RowRef {
@@ -1338,11 +1334,7 @@ mod tests {
             .iter()
             .map(|(&k, r)| {
                 let mut r = r.clone();
-                r.refs = r.refs.map(|raw| {
-                    let mut packed = Vec::new();
-                    crate::store::repack_legacy_refs(&raw, &mut packed);
-                    packed
-                });
+                r.refs = r.refs.as_deref().map(crate::store::repack_legacy_refs);
                 (k, r)
             })
             .collect();

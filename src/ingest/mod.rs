@@ -852,7 +852,6 @@ fn parse_input(input: &Input, sender: &SyncSender<Msg>, spares: &Spares) {
     let _ = sender.send(msg);
 }
 
-/// Collects the XML reader's output into batches.
 /// Batches the writer has applied, handed back to the parsers, which refill their elements'
 /// buffers instead of allocating new ones: allocating them on one thread and freeing them on
 /// another cost about 4 % of an ingest (BENCHMARKS.md, "Lookups at scale").
@@ -883,6 +882,7 @@ impl Spares {
     }
 }
 
+/// Collects the XML reader's output into batches.
 struct BatchSink<'a> {
     items: Vec<Item>,
     /// Applied items whose elements the next ones are packed into.

@@ -474,9 +474,7 @@ pub fn decode(
             tags: text(e.tags)?,
             refs: e.refs.map(|r| {
                 if e.legacy_refs {
-                    let mut packed = Vec::new();
-                    super::repack_legacy_refs(r, &mut packed);
-                    packed
+                    super::repack_legacy_refs(r)
                 } else {
                     r.to_vec()
                 }

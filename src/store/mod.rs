@@ -140,16 +140,13 @@ pub fn unpack_refs(b: &[u8]) -> impl Iterator<Item = i64> + '_ {
 
 /// Refs stored the older way, as little-endian `i64`s (edit-log blocks of format 1,
 /// element-state files of version 1, the refs columns of schemas 1 and 2), packed as
-/// [`pack_refs`] does into `out`.
-pub(crate) fn repack_legacy_refs(raw: &[u8], out: &mut Vec<u8>) {
-    pack_refs_into(
-        raw.chunks_exact(8).map(|c| {
-            let mut a = [0u8; 8];
-            a.copy_from_slice(c);
-            i64::from_le_bytes(a)
-        }),
-        out,
-    );
+/// [`pack_refs`] does.
+pub(crate) fn repack_legacy_refs(raw: &[u8]) -> Vec<u8> {
+    pack_refs(raw.chunks_exact(8).map(|c| {
+        let mut a = [0u8; 8];
+        a.copy_from_slice(c);
+        i64::from_le_bytes(a)
+    }))
 }
 
 /// Encodes a relation member for [`pack_refs`].
@@ -333,11 +330,7 @@ impl Store {
                 let lon: Option<i32> = r.get(6).map_err(err)?;
                 let tags: String = r.get(7).map_err(err)?;
                 let raw: Option<Vec<u8>> = r.get(8).map_err(err)?;
-                let refs = raw.map(|raw| {
-                    let mut packed = Vec::new();
-                    repack_legacy_refs(&raw, &mut packed);
-                    packed
-                });
+                let refs = raw.as_deref().map(repack_legacy_refs);
                 let row = RowRef {
                     version: r.get(2).map_err(err)?,
                     ts: r.get(3).map_err(err)?,
@@ -466,11 +459,7 @@ impl Store {
                 let user: String = r.get(6).map_err(err)?;
                 let tags: String = r.get(10).map_err(err)?;
                 let raw: Option<Vec<u8>> = r.get(11).map_err(err)?;
-                let refs = raw.map(|raw| {
-                    let mut packed = Vec::new();
-                    repack_legacy_refs(&raw, &mut packed);
-                    packed
-                });
+                let refs = raw.as_deref().map(repack_legacy_refs);
                 let prev_version: Option<i64> = r.get(12).map_err(err)?;
                 let prev_tags: Option<String> = r.get(14).map_err(err)?;
                 let e = edit_log::EditRef {
@@ -1232,9 +1221,7 @@ mod tests {
         );
         // Refs as older files hold them, little-endian i64s, repacked.
         let raw: Vec<u8> = extremes.iter().flat_map(|v| v.to_le_bytes()).collect();
-        let mut packed = vec![9; 3];
-        repack_legacy_refs(&raw, &mut packed);
-        assert_eq!(packed, pack_refs(extremes));
+        assert_eq!(repack_legacy_refs(&raw), pack_refs(extremes));
         // A cut varint ends the refs; nothing past it is made up.
         let cut = &pack_refs([1, 300])[..2];
         assert_eq!(unpack_refs(cut).collect::<Vec<_>>(), vec![1]);
