@@ -38,8 +38,11 @@ use crate::model::ElementType;
 use crate::sorted_keys::SortedKeys;
 use crate::store::edit_log::{get_varint, put_bytes, put_signed, put_varint, unzigzag};
 
-/// A block is closed once it holds this many bytes (a lookup scans at most one block).
-pub const BLOCK_BYTES: usize = 2048;
+/// A block is closed once it holds this many bytes (a lookup reads and scans one block). 1 KiB
+/// rather than 2: each lookup copies and scans half as much for a directory twice as long (a
+/// few MiB at 16x), about 3 % of a 16x ingest (BENCHMARKS.md, session 9). Readers take any
+/// block size from the directory.
+pub const BLOCK_BYTES: usize = 1024;
 const MAGIC: &[u8; 8] = b"HXVELEM2";
 /// Files of version 1, whose refs are little-endian `i64`s.
 const MAGIC_LEGACY_REFS: &[u8; 8] = b"HXVELEM1";

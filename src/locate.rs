@@ -275,83 +275,103 @@ impl<'a> Locator<'a> {
         index.cache.clear();
         let coord = |p: Option<(i32, i32)>| p.and_then(|(a, b)| Coord::from_e7(a.into(), b.into()));
         let stored = store.edits(from, to)?;
-        // The nodes this window's unplaced edits will ask for (a way's or relation's stored
-        // refs are only known later; those few are looked up as they come).
-        let mut wanted = Vec::new();
-        for e in stored.iter().filter(|e| e.pos.is_none()) {
-            match (e.etype, &e.refs) {
-                (ElementType::Node, _) => wanted.push(e.eid),
-                (ElementType::Way, Some(r)) => wanted.extend(unpack_refs(r)),
-                (ElementType::Relation, Some(r)) => wanted.extend(
-                    unpack_refs(r)
-                        .take(MAX_MEMBERS_FOR_CENTROID)
-                        .filter_map(member_decode)
-                        .filter(|m| m.0 == ElementType::Node)
-                        .map(|m| m.1),
-                ),
-                _ => {}
-            }
-        }
-        index.prefetch(wanted)?;
-        let rows = stored.into_iter().map(|e| {
+        let mut edits = Vec::with_capacity(stored.len());
+        // The node positions each unplaced node or way edit needs, as (node id, edit) pairs:
+        // sorted by node, they are looked up in id order, each node once, and summed into their
+        // edits' centroids (BENCHMARKS.md, session 9).
+        let mut wanted: Vec<(i64, u32)> = Vec::new();
+        // Relations are few: their members are looked up through the cache, nodes first in id
+        // order, after the ways.
+        let mut relations: Vec<(usize, Vec<u8>)> = Vec::new();
+        let mut relation_nodes = Vec::new();
+        for e in stored {
+            let at = u32::try_from(edits.len()).unwrap_or(u32::MAX);
             let pos = coord(e.pos);
-            let (prev_tags, prev_version, prev_ts, prev_pos) = match e.prev {
-                Some(p) => (Some(p.tags), Some(p.version), p.ts, coord(p.pos)),
-                None => (None, None, None, None),
-            };
-            (
-                Edit {
-                    etype: e.etype,
-                    eid: e.eid,
-                    version: e.version,
-                    op: e.op,
-                    changeset: e.changeset,
-                    uid: e.uid,
-                    user: e.user,
-                    ts: e.ts,
-                    pos,
-                    placed_by: if pos.is_some() {
-                        PlacedBy::Own
-                    } else {
-                        PlacedBy::Unplaced
-                    },
-                    tags: e.tags,
-                    prev_tags,
-                    prev_version,
-                    prev_ts,
-                    prev_pos,
-                },
-                e.refs,
-            )
-        });
-        let mut edits = Vec::with_capacity(rows.len());
-        let mut pending = Vec::new();
-        for (mut e, refs) in rows {
-            if e.pos.is_none() {
-                let refs = match refs {
+            if pos.is_none() {
+                let refs = match e.refs {
                     Some(r) => Some(r),
                     None if e.etype != ElementType::Node => index.stored_refs(e.etype, e.eid)?,
                     None => None,
                 };
-                let c = match e.etype {
-                    ElementType::Node => index.node(e.eid)?.or(e.prev_pos),
-                    ElementType::Way => match refs {
-                        Some(r) => index.way_centroid(&r)?,
-                        None => None,
-                    },
-                    ElementType::Relation => match refs {
-                        Some(r) => index.relation_centroid(&r)?,
-                        None => None,
-                    },
-                };
-                if let Some(c) = c {
-                    e.pos = Some(c);
-                    e.placed_by = PlacedBy::NodeIndex;
-                } else {
-                    pending.push(edits.len());
+                match (e.etype, refs) {
+                    (ElementType::Node, _) => wanted.push((e.eid, at)),
+                    (ElementType::Way, Some(r)) => {
+                        wanted.extend(unpack_refs(&r).map(|id| (id, at)));
+                    }
+                    (ElementType::Relation, Some(r)) => {
+                        relation_nodes.extend(
+                            unpack_refs(&r)
+                                .take(MAX_MEMBERS_FOR_CENTROID)
+                                .filter_map(member_decode)
+                                .filter(|m| m.0 == ElementType::Node)
+                                .map(|m| m.1),
+                        );
+                        relations.push((edits.len(), r));
+                    }
+                    _ => {}
                 }
             }
-            edits.push(e);
+            let (prev_tags, prev_version, prev_ts, prev_pos) = match e.prev {
+                Some(p) => (Some(p.tags), Some(p.version), p.ts, coord(p.pos)),
+                None => (None, None, None, None),
+            };
+            edits.push(Edit {
+                etype: e.etype,
+                eid: e.eid,
+                version: e.version,
+                op: e.op,
+                changeset: e.changeset,
+                uid: e.uid,
+                user: e.user,
+                ts: e.ts,
+                pos,
+                placed_by: if pos.is_some() {
+                    PlacedBy::Own
+                } else {
+                    PlacedBy::Unplaced
+                },
+                tags: e.tags,
+                prev_tags,
+                prev_version,
+                prev_ts,
+                prev_pos,
+            });
+        }
+        let mut sums: Vec<Centroid> = Vec::new();
+        sums.resize_with(edits.len(), Centroid::default);
+        wanted.sort_unstable();
+        let mut k = 0;
+        while let Some(&(id, _)) = wanted.get(k) {
+            let c = index.nodes.get(id)?.map(|n| n.coord);
+            while let Some(&(_, at)) = wanted.get(k).filter(|w| w.0 == id) {
+                if let (Some(c), Some(s)) = (c, sums.get_mut(at as usize)) {
+                    s.add(c);
+                }
+                k += 1;
+            }
+        }
+        drop(wanted);
+        index.prefetch(relation_nodes)?;
+        let mut relations = relations.into_iter().peekable();
+        let mut pending = Vec::new();
+        for (i, (e, sum)) in edits.iter_mut().zip(&sums).enumerate() {
+            if e.pos.is_some() {
+                continue;
+            }
+            let c = match e.etype {
+                ElementType::Node => sum.get().or(e.prev_pos),
+                ElementType::Way => sum.get(),
+                ElementType::Relation => match relations.next_if(|r| r.0 == i) {
+                    Some((_, r)) => index.relation_centroid(&r)?,
+                    None => None,
+                },
+            };
+            if let Some(c) = c {
+                e.pos = Some(c);
+                e.placed_by = PlacedBy::NodeIndex;
+            } else {
+                pending.push(i);
+            }
         }
         let mut ids: Vec<i64> = edits.iter().map(|e| e.changeset).collect();
         ids.sort_unstable();
