@@ -3,7 +3,7 @@
 //! Order of evidence: the element's own coordinates (nodes); the node-location index (latest
 //! known position of each node from the snapshot and every diff, read through
 //! [`Store::node_index`]) for deleted nodes without coordinates, ways (centroid of their nodes,
-//! whose refs are kept in the `elements` table) and relations (centroid of their node and way
+//! from the edit's refs or the element state's) and relations (centroid of their node and way
 //! members); then the centre of the changeset's bounding box. An edit that none of these can
 //! place is counted as unplaced, never silently dropped.
 
