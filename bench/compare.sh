@@ -11,7 +11,9 @@
 # resident memory (GNU time), ratios of wall times to (a) and (b), load average.
 # Usage: bench/compare.sh [SCALE...]   (default: 1 4 16; scale 1 = intensity 6, ~1 M changes)
 # RUNS=N runs each timing N times and keeps the fastest (a busy machine slows single runs);
-# the floor runs at least 5 times.
+# the floor runs at least 5 times. Each (c) row is divided by a floor taken just before it
+# (the fastest of 3 runs, shown in a comment above the row): this host's speed drifts between
+# rows minutes apart, and a ratio to a floor taken under other load would carry the drift.
 # Needs: pip install osmium h3. HEXVIGIL=path compares another build of the binary.
 # INPUTS=dir reuses inputs generated before (dir/xSCALE/input, from `hexvigil demo --out
 # dir/xSCALE --intensity 6*SCALE --inputs-only`; the generator is deterministic).
@@ -44,8 +46,20 @@ timed() { # label, command...: runs it $RUNS times; sets secs, mib, cpu of the f
         "$(awk -v s="$secs" -v p="${py:-0}" 'BEGIN {if (p > 0) printf "%.2f", s / p; else print "-"}')" "$load"
 }
 
-sum_row() { # label, seconds, seconds: a row for two runs one after the other
-    echo "| $scale | (c) hexvigil $1 | $(awk -v a="$2" -v b="$3" 'BEGIN {printf "%.2f s", a + b}') | | | | $(awk -v a="$2" -v b="$3" -v f="$floor" 'BEGIN {printf "%.1f", (a + b) / f}') | $(awk -v a="$2" -v b="$3" -v p="$py" 'BEGIN {printf "%.2f", (a + b) / p}') | |"
+refloor() { # sets floor to the fastest of 3 runs of (a) now, for the row that follows
+    local i s
+    floor=
+    for ((i = 0; i < 3; i++)); do
+        sync
+        /usr/bin/time -f %e -o "$work/f" taskset -c 0 gzip -dc "${diffs[@]}" > /dev/null
+        s=$(cat "$work/f")
+        if [ -z "$floor" ] || awk -v a="$s" -v b="$floor" 'BEGIN {exit !(a < b)}'; then floor=$s; fi
+    done
+    echo "<!-- floor just before the next row: $floor s (fastest of 3) -->"
+}
+
+sum_row() { # label, seconds, seconds, floor, floor: a row for two runs one after the other
+    echo "| $scale | (c) hexvigil $1 | $(awk -v a="$2" -v b="$3" 'BEGIN {printf "%.2f s", a + b}') | | | | $(awk -v a="$2" -v b="$3" -v f="$4" -v g="$5" 'BEGIN {printf "%.1f", (a + b) / ((f + g) / 2)}') | $(awk -v a="$2" -v b="$3" -v p="$py" 'BEGIN {printf "%.2f", (a + b) / p}') | |"
 }
 
 echo
@@ -65,22 +79,27 @@ for scale in "${scales[@]}"; do
     inputs=("$d/input/snapshot.osm" "$d/input/changesets.osm" "${diffs[@]}")
     areas=(--regions "$d/input/regions.geojson" --land "$d/input/land.geojson")
     # Each ingest run starts from no database (a second run of the same files would do nothing).
+    refloor
     timed "(c) hexvigil ingest, 1 core" sh -c 'rm -f "$1" "$1"-wal "$1"-shm "$1".nodes.* "$1".elements.* "$1".edits; shift; exec taskset -c 0 "$@"' \
         - "$d/one.db" "$bin" --quiet ingest --db "$d/one.db" "${inputs[@]}"
-    ingest1=$secs
+    ingest1=$secs; floor1=$floor
     # The diffs alone, into a copy of a database made from the snapshot and changesets.
     "$bin" --quiet ingest --db "$d/base.db" "$d/input/snapshot.osm" "$d/input/changesets.osm"
     prep='rm -f "$d"/diffs.db*; for f in "$d"/base.db*; do cp "$f" "$d/diffs.db${f#"$d"/base.db}"; done'
+    refloor
     timed "(c) hexvigil ingest of the diffs alone (snapshot and changesets in before), 1 core" \
         taskset -c 0 "$bin" --quiet ingest --db "$d/diffs.db" "${diffs[@]}"
     prep=
     rm -f "$d"/base.db* "$d"/diffs.db*
+    refloor
     timed "(c) hexvigil report (after the ingest), 1 core" taskset -c 0 "$bin" --quiet report --db "$d/one.db" --out "$d/rep1" "${areas[@]}"
-    sum_row "ingest + report, 1 core" "$ingest1" "$secs"
+    sum_row "ingest + report, 1 core" "$ingest1" "$secs" "$floor1" "$floor"
+    refloor
     timed "(c) hexvigil ingest, $(nproc) cores" sh -c 'rm -f "$1" "$1"-wal "$1"-shm "$1".nodes.* "$1".elements.* "$1".edits; shift; exec "$@"' \
         - "$d/all.db" "$bin" --quiet ingest --db "$d/all.db" "${inputs[@]}"
-    ingest2=$secs
+    ingest2=$secs; floor2=$floor
+    refloor
     timed "(c) hexvigil report (after the ingest), $(nproc) cores" "$bin" --quiet report --db "$d/all.db" --out "$d/rep2" "${areas[@]}"
-    sum_row "ingest + report, $(nproc) cores" "$ingest2" "$secs"
+    sum_row "ingest + report, $(nproc) cores" "$ingest2" "$secs" "$floor2" "$floor"
     rm -rf "$d"
 done
