@@ -206,15 +206,15 @@ pub struct Counted {
 }
 
 /// The region a changeset's share counts in: its cell's region, or for edits that could not be
-/// placed, the first region, in the report week only.
+/// placed, the first region, in every week alike. (Counting them in the report week alone, as
+/// before, set that region's report week against usual weeks that left them out.)
 fn share_region(
     share: &ChangesetCellWeek,
-    report_idx: usize,
     region_of_cell: impl FnOnce(CellIndex) -> Option<usize>,
 ) -> Option<usize> {
     match share.cell {
         Some(c) => region_of_cell(c),
-        None => (share.week == report_idx).then_some(0),
+        None => Some(0),
     }
 }
 
@@ -639,7 +639,7 @@ fn count_loaded(
             // The shares taken are all those of this part's changesets before the report week.
             let shares = counter.take_shares_before(report_idx);
             let placed = shares.iter().filter_map(|share| {
-                let region = share_region(share, report_idx, |c| {
+                let region = share_region(share, |c| {
                     *region_cache
                         .entry(c)
                         .or_insert_with(|| crate::regions::region_of(regions, c))
@@ -794,7 +794,7 @@ pub fn analyse_counted(
         .region_weeks
         .unwrap_or_else(|| RegionWeeks::new(regions.len(), weeks));
     let placed = counted.changeset_cells.iter().filter_map(|share| {
-        share_region(share, report_idx, |c| region_of_cell.get(&c).copied()).map(|r| (r, share))
+        share_region(share, |c| region_of_cell.get(&c).copied()).map(|r| (r, share))
     });
     totals.add_batch(placed, |id| {
         counted.scores.get(&id).is_some_and(|&s| s >= threshold)
@@ -836,8 +836,7 @@ pub fn analyse_counted(
         let mut mappers = BTreeSet::new();
         let mut cs_rows: BTreeMap<i64, (u64, u64, u64)> = BTreeMap::new();
         for r in &counted.changeset_cells {
-            let in_region =
-                share_region(r, report_idx, |c| region_of_cell.get(&c).copied()) == Some(ri);
+            let in_region = share_region(r, |c| region_of_cell.get(&c).copied()) == Some(ri);
             if in_region && r.week == report_idx {
                 placement += r.placement.clone();
                 counts.edits += r.edits();
@@ -1162,6 +1161,30 @@ mod tests {
         let got = carried_changesets(from, &parts, hours);
         let want: foldhash::HashMap<i64, usize> = [(2, 1), (4, 3), (6, 3)].into_iter().collect();
         assert_eq!(got, want);
+    }
+
+    #[test]
+    fn unplaced_shares_count_in_the_first_region_in_every_week() {
+        // A region's report week is compared with its usual weeks: edits that could not be
+        // placed must count the same way in both (common practice, no source).
+        let share = |week, cell| ChangesetCellWeek {
+            week,
+            cell,
+            changeset: 1,
+            ..ChangesetCellWeek::default()
+        };
+        let cell = h3o::LatLng::new(45.2, -33.6)
+            .unwrap()
+            .to_cell(h3o::Resolution::Nine);
+        for week in [0, 5, 13] {
+            assert_eq!(
+                share_region(&share(week, None), |_| Some(1)),
+                Some(0),
+                "week {week}"
+            );
+            assert_eq!(share_region(&share(week, Some(cell)), |_| Some(1)), Some(1));
+            assert_eq!(share_region(&share(week, Some(cell)), |_| None), None);
+        }
     }
 
     #[test]
