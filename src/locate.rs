@@ -133,7 +133,7 @@ impl Positions {
 
 /// Mean of positions in 1e-7 degree units. Ways and relations spanning the antimeridian would
 /// average to the wrong side; no such region is supported yet (documented in README).
-#[derive(Default)]
+#[derive(Default, Clone)]
 struct Centroid {
     lat: i64,
     lon: i64,
@@ -279,13 +279,13 @@ impl<'a> Locator<'a> {
         // The node positions each unplaced node or way edit needs, as (node id, edit) pairs:
         // sorted by node, they are looked up in id order, each node once, and summed into their
         // edits' centroids (BENCHMARKS.md, session 9).
-        let mut wanted: Vec<(i64, u32)> = Vec::new();
+        let mut wanted: Vec<(i64, usize)> = Vec::new();
         // Relations are few: their members are looked up through the cache, nodes first in id
         // order, after the ways.
         let mut relations: Vec<(usize, Vec<u8>)> = Vec::new();
         let mut relation_nodes = Vec::new();
         for e in stored {
-            let at = u32::try_from(edits.len()).unwrap_or(u32::MAX);
+            let at = edits.len();
             let pos = coord(e.pos);
             if pos.is_none() {
                 let refs = match e.refs {
@@ -306,7 +306,7 @@ impl<'a> Locator<'a> {
                                 .filter(|m| m.0 == ElementType::Node)
                                 .map(|m| m.1),
                         );
-                        relations.push((edits.len(), r));
+                        relations.push((at, r));
                     }
                     _ => {}
                 }
@@ -337,17 +337,13 @@ impl<'a> Locator<'a> {
                 prev_pos,
             });
         }
-        let mut sums: Vec<Centroid> = Vec::new();
-        sums.resize_with(edits.len(), Centroid::default);
+        let mut sums = vec![Centroid::default(); edits.len()];
         wanted.sort_unstable();
-        let mut k = 0;
-        while let Some(&(id, _)) = wanted.get(k) {
-            let c = index.nodes.get(id)?.map(|n| n.coord);
-            while let Some(&(_, at)) = wanted.get(k).filter(|w| w.0 == id) {
-                if let (Some(c), Some(s)) = (c, sums.get_mut(at as usize)) {
-                    s.add(c);
+        for named in wanted.chunk_by(|a, b| a.0 == b.0) {
+            if let Some(n) = index.nodes.get(named[0].0)? {
+                for &(_, at) in named {
+                    sums[at].add(n.coord);
                 }
-                k += 1;
             }
         }
         drop(wanted);
